@@ -1,0 +1,199 @@
+"""The ``strata`` command. Thin: parses options, calls :class:`engine.Corpus`, prints.
+
+Every user mistake (a :class:`StrataError`) is printed as a message with its place
+and ends the command with exit code 2; there is no traceback for those.
+"""
+from __future__ import annotations
+
+import functools
+import sys
+from pathlib import Path
+from typing import Callable, List, Optional
+
+import typer
+from rich.console import Console
+from rich.table import Table
+
+from engine.errors import EXIT_USER_ERROR, StrataError
+
+app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
+                  help="strata: import annotation layers onto shared anchors and query across them.")
+err = Console(stderr=True, highlight=False)
+out = Console(highlight=False)
+
+
+def user_errors(fn: Callable) -> Callable:
+    """Turn StrataError into a message on stderr and exit code 2."""
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except StrataError as e:
+            err.print(f"[bold red]error:[/] {_escape(str(e))}")
+            raise typer.Exit(EXIT_USER_ERROR)
+        except KeyboardInterrupt:
+            err.print("interrupted; the corpus is unchanged")
+            raise typer.Exit(130)
+    return wrapper
+
+
+def _escape(text: str) -> str:
+    return text.replace("[", "\\[")
+
+
+def _open(corpus: Path):
+    from engine import Corpus
+    return Corpus.open(corpus)
+
+
+@app.command()
+@user_errors
+def init(corpus: Path = typer.Argument(..., help="folder to create the corpus in")) -> None:
+    """Create an empty corpus."""
+    from engine import Corpus
+    Corpus.create(corpus)
+    out.print(f"created corpus {corpus}")
+
+
+@app.command("import")
+@user_errors
+def import_(
+    corpus: Path = typer.Argument(..., help="the corpus folder"),
+    files: List[Path] = typer.Argument(..., help="files to import"),
+    format: Optional[str] = typer.Option(None, "--format", help="input format (default: from the file ending)"),
+    prefix: str = typer.Option("", "--prefix", help="namespace for the new layers, for a second annotation"),
+    lenient: bool = typer.Option(False, "--lenient", help="skip bad sentences or rows and list them"),
+    doc: Optional[str] = typer.Option(None, "--doc", help="document name (transcripts)"),
+    layer: Optional[str] = typer.Option(None, "--layer", help="layer name (span tables, trees)"),
+    anchor: Optional[str] = typer.Option(None, "--anchor", help="span tables: chars | tokens:LAYER | time"),
+    time_unit: str = typer.Option("s", "--time-unit", help="tiers and spans: s or ms"),
+    accept_poor_alignment: bool = typer.Option(False, "--accept-poor-alignment",
+                                               help="keep a layer that aligns below the threshold"),
+) -> None:
+    """Import annotation files into a corpus (all or nothing)."""
+    extra = {k: v for k, v in {"doc": doc, "layer": layer, "anchor": anchor, "time_unit": time_unit,
+                               "accept_poor_alignment": accept_poor_alignment}.items()
+             if v not in (None, False, "s")}
+    report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, **extra)
+    counts = ", ".join(f"{v} {k}" for k, v in report.counts.items())
+    out.print(f"imported {len(report.files)} file(s): {counts}")
+    for w in report.warnings:
+        err.print(f"warning: {_escape(w)}")
+    if report.skipped:
+        err.print(f"skipped {len(report.skipped)} bad sentence(s) or row(s):")
+        for s in report.skipped:
+            err.print(f"  {_escape(s)}")
+
+
+@app.command()
+@user_errors
+def info(corpus: Path = typer.Argument(..., help="the corpus folder")) -> None:
+    """Documents, layers, node and edge counts, anchor coverage."""
+    summary = _open(corpus).info()
+    print_info(summary)
+
+
+def print_info(summary: dict) -> None:
+    out.print(f"corpus {summary['path']}: {summary['documents']} documents, {summary['characters']} characters")
+    table = Table("layer", "kind", "rows", "attributes", "char anchors", "time anchors")
+    for row in summary["layers"]:
+        pct = lambda v: "" if v is None else f"{100 * v:.0f}%"
+        table.add_row(row["layer"], row["kind"], str(row["rows"]), str(row["attrs"]),
+                      pct(row.get("char_anchored")), pct(row.get("time_anchored")))
+    out.print(table)
+
+
+@app.command()
+@user_errors
+def export(
+    corpus: Path = typer.Argument(..., help="the corpus folder"),
+    format: str = typer.Option("conllu", "--format", help="output format"),
+    output: Optional[Path] = typer.Option(None, "-o", "--output", help="file to write (default: stdout)"),
+    prefix: str = typer.Option("", "--prefix", help="export the layers of this prefix"),
+) -> None:
+    """Write a corpus back out (CoNLL-U)."""
+    c = _open(corpus)
+    if output is None:
+        sys.stdout.write(c.export(format, None, prefix))
+    else:
+        c.export(format, output, prefix)
+
+
+@app.command()
+@user_errors
+def query(
+    corpus: Path = typer.Argument(..., help="the corpus folder"),
+    text: Optional[str] = typer.Argument(None, help="the query, or - to read it from stdin"),
+    file: Optional[Path] = typer.Option(None, "-f", "--file", help="read the query from a file"),
+    format: str = typer.Option("table", "--format", help="table, csv, tsv, jsonl or parquet"),
+    output: Optional[Path] = typer.Option(None, "-o", "--output", help="file to write"),
+    limit: Optional[int] = typer.Option(None, "--limit", help="at most this many hits"),
+    context: int = typer.Option(5, "--context", help="words of context left and right"),
+) -> None:
+    """Run a query and print or save its hit table."""
+    q = _query_text(text, file)
+    hits = _open(corpus).query(q, limit=limit, context=context)
+    write_hits(hits, format, output)
+
+
+def write_hits(hits, format: str, output: Optional[Path]) -> None:
+    writers = {"csv": hits.to_csv, "tsv": hits.to_tsv, "jsonl": hits.to_jsonl, "parquet": hits.to_parquet}
+    if format == "table":
+        if output is not None:
+            Path(output).write_text(hits.render_table(width=200) + "\n", encoding="utf-8")
+        else:
+            out.print(_escape(hits.render_table(width=out.width)), soft_wrap=True)
+        return
+    if format not in writers:
+        raise StrataError(f"unknown output format {format!r}; use table, csv, tsv, jsonl or parquet")
+    if format == "parquet" and output is None:
+        raise StrataError("parquet output needs a file: add -o FILE")
+    if output is None:
+        sys.stdout.write(writers[format](None))
+    else:
+        writers[format](output)
+
+
+def _query_text(text: Optional[str], file: Optional[Path]) -> str:
+    if file is not None:
+        if text is not None:
+            raise StrataError("give the query either as an argument or with -f FILE, not both")
+        try:
+            return Path(file).read_text(encoding="utf-8")
+        except OSError as e:
+            raise StrataError(f"cannot read the query file: {e.strerror}", file=str(file)) from None
+        except UnicodeDecodeError:
+            raise StrataError("the query file is not UTF-8", file=str(file)) from None
+    if text is None or text == "-":
+        return sys.stdin.read()
+    return text
+
+
+@app.command()
+@user_errors
+def explain(
+    corpus: Path = typer.Argument(..., help="the corpus folder"),
+    text: Optional[str] = typer.Argument(None, help="the query, or - for stdin"),
+    file: Optional[Path] = typer.Option(None, "-f", "--file", help="read the query from a file"),
+) -> None:
+    """Show how a query is parsed, compiled to SQL and planned by DuckDB."""
+    out.print(_escape(_open(corpus).explain(_query_text(text, file))), soft_wrap=True)
+
+
+@app.command()
+@user_errors
+def demo(
+    corpus: Optional[Path] = typer.Option(None, "--corpus", help="where to build the demo corpus "
+                                          "(default: a fresh temporary folder)"),
+) -> None:
+    """Build the invented demo corpus and run showcase queries on it."""
+    from corpora_demo.run import run_demo
+    run_demo(corpus, out)
+
+
+def main() -> None:  # pragma: no cover - entry point
+    app()
+
+
+if __name__ == "__main__":  # pragma: no cover
+    app()

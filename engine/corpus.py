@@ -1,0 +1,121 @@
+"""The Python face of strata.
+
+>>> from engine import Corpus                                  # doctest: +SKIP
+>>> c = Corpus.create("calls.corpus")                           # doctest: +SKIP
+>>> c.import_files(["calls.conllu"])                            # doctest: +SKIP
+>>> hits = c.query('find t = token(upos = "VERB") count by t.lemma')   # doctest: +SKIP
+>>> hits.to_pandas()                                            # doctest: +SKIP
+"""
+from __future__ import annotations
+
+import io
+import os
+from pathlib import Path
+from typing import Iterable
+
+from engine.errors import StrataError
+from engine.exporters import EXPORTERS
+from engine.importers import IMPORTERS, SUFFIXES
+from engine.importers.base import ImportOptions, ImportReport
+from engine.store import Store
+
+
+class Corpus:
+    """A corpus directory with its layers; open it, import into it, query it."""
+
+    def __init__(self, store: Store) -> None:
+        self.store = store
+
+    @classmethod
+    def create(cls, path: str | os.PathLike) -> "Corpus":
+        return cls(Store.create(path))
+
+    @classmethod
+    def open(cls, path: str | os.PathLike) -> "Corpus":
+        return cls(Store.open(path))
+
+    @property
+    def path(self) -> Path:
+        return self.store.root
+
+    # -- import / export -------------------------------------------------------------
+    def import_files(self, paths: Iterable[str | os.PathLike], format: str | None = None,
+                     prefix: str = "", lenient: bool = False, progress: bool = True,
+                     **extra) -> ImportReport:
+        """Import files of one format, all or nothing."""
+        paths = [Path(p) for p in paths]
+        if not paths:
+            raise StrataError("no files to import")
+        for p in paths:
+            if not p.is_file():
+                raise StrataError("no such file", file=str(p))
+        fmt = format or _guess_format(paths)
+        module = IMPORTERS.get(fmt)
+        if module is None:
+            raise StrataError(f"unknown format {fmt!r}; known: {', '.join(sorted(IMPORTERS))}")
+        options = ImportOptions(prefix=prefix, lenient=lenient, progress=progress, extra=extra)
+        with self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra}) as batch:
+            return module.import_files(batch, paths, options)
+
+    def export(self, format: str = "conllu", out: str | os.PathLike | None = None, prefix: str = "") -> str | None:
+        """Write the corpus in ``format`` to ``out`` (a path), or return it as a string."""
+        module = EXPORTERS.get(format)
+        if module is None:
+            raise StrataError(f"unknown export format {format!r}; known: {', '.join(sorted(EXPORTERS))}")
+        if out is None:
+            buf = io.StringIO()
+            module.export(self.store, buf, prefix)
+            return buf.getvalue()
+        tmp = Path(str(out) + ".part")
+        with open(tmp, "w", encoding="utf-8", newline="") as f:
+            module.export(self.store, f, prefix)
+        os.replace(tmp, out)
+        return None
+
+    # -- looking -----------------------------------------------------------------------
+    def info(self) -> dict:
+        """Documents, layers with node/edge counts and anchor coverage."""
+        con = self.store.connect()
+        layers = []
+        for name, layer in self.store.layers().items():
+            row = {"layer": name, "kind": layer.kind, "rows": layer.rows}
+            if layer.kind != "edges" and layer.rows:
+                chars, timed = con.execute(
+                    f'SELECT count(*) FILTER (WHERE start IS NOT NULL), count(*) FILTER (WHERE t_start IS NOT NULL) '
+                    f'FROM "{name}"').fetchone()
+                row["char_anchored"] = chars / layer.rows
+                row["time_anchored"] = timed / layer.rows
+            row["attrs"] = len(layer.attrs)
+            layers.append(row)
+        docs = con.execute("SELECT count(*), coalesce(sum(length), 0) FROM documents").fetchone()
+        con.close()
+        return {"path": str(self.path), "documents": docs[0], "characters": docs[1], "layers": layers}
+
+    def connect(self):
+        """A DuckDB connection with one view per layer (for your own SQL)."""
+        return self.store.connect()
+
+    def query(self, text: str, *, limit: int | None = None, context: int = 5):
+        """Run a query; returns a hit table (:class:`engine.results.Hits`)."""
+        from engine.execute import run_query
+        con = self.store.connect()
+        return run_query(con, self.store, text, limit=limit, context=context)
+
+    def explain(self, text: str) -> str:
+        from engine.execute import compile_query
+        compiled = compile_query(text, self.store)
+        con = self.store.connect()
+        return compiled.explain_text(con)
+
+
+def _guess_format(paths: list[Path]) -> str:
+    fmts = set()
+    for p in paths:
+        name = p.name.lower()
+        fmt = next((f for suf, f in sorted(SUFFIXES.items(), key=lambda kv: -len(kv[0])) if name.endswith(suf)), None)
+        if fmt is None:
+            raise StrataError("cannot tell the format from the file name; give --format", file=str(p))
+        fmts.add(fmt)
+    if len(fmts) > 1:
+        raise StrataError(f"the files are of several formats ({', '.join(sorted(fmts))}); import them one format at a time")
+    return fmts.pop()

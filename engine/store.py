@@ -1,0 +1,473 @@
+"""The corpus directory: Parquet node and edge tables, a DuckDB catalog.
+
+A corpus is a folder (see DEVELOPERS.md for the schema). Writes go through a
+:class:`Batch`, which stages every Parquet part under ``staging/`` and commits
+them together with their catalog rows in one DuckDB transaction, so an import
+is all-or-nothing. Reads go through :meth:`Store.connect`, which opens an
+in-memory DuckDB connection with one view per layer.
+
+>>> import tempfile, pyarrow as pa
+>>> s = Store.create(tempfile.mkdtemp() + "/c")
+>>> with s.batch("example") as b:
+...     d = b.add_document("d1", "hi there")
+...     ids = b.alloc_ids(2)
+...     b.write_nodes("token", "token", pa.table({"id": [ids, ids + 1], "doc": [d.doc] * 2,
+...         "start": [d.base, d.base + 3], "end": [d.base + 2, d.base + 8], "ord": [0, 1]}))
+>>> s.layer_rows("token")
+2
+"""
+from __future__ import annotations
+
+import json
+import os
+import re
+import shutil
+import uuid
+from contextlib import contextmanager
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Iterator
+
+import duckdb
+import pyarrow as pa
+import pyarrow.parquet as pq
+
+from engine.errors import StrataError
+from querylang.catalog import AttrInfo, LayerInfo
+
+SCHEMA_VERSION = "1"
+CATALOG_FILE = "catalog.duckdb"
+ROW_GROUP_SIZE = 122_880
+
+#: Columns every node table has; see DEVELOPERS.md "Node tables".
+ANCHOR_COLUMNS: dict[str, pa.DataType] = {
+    "id": pa.int64(),
+    "doc": pa.int32(),
+    "start": pa.int64(),
+    "end": pa.int64(),
+    "t_start": pa.float64(),
+    "t_end": pa.float64(),
+    "sent": pa.int64(),
+    "tok_first": pa.int64(),
+    "tok_last": pa.int64(),
+    "word_first": pa.int64(),
+    "word_last": pa.int64(),
+}
+TREE_COLUMNS = ("parent", "depth", "pre", "post", "reading")
+EDGE_COLUMNS: dict[str, pa.DataType] = {
+    "src": pa.int64(), "dst": pa.int64(), "label": pa.string(), "doc": pa.int32()}
+#: Columns that are structure, not attributes a query tests.
+STRUCTURAL = set(ANCHOR_COLUMNS) | {"ord", "parent", "pre", "post", "src", "dst", "comments",
+                                     "head", "line"}
+DOC_GAP = 1
+_LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
+
+_CATALOG_DDL = """
+CREATE TABLE IF NOT EXISTS meta (key VARCHAR PRIMARY KEY, value VARCHAR);
+CREATE TABLE IF NOT EXISTS documents (doc INTEGER PRIMARY KEY, name VARCHAR UNIQUE,
+    base BIGINT, length BIGINT, text VARCHAR, duration DOUBLE);
+CREATE TABLE IF NOT EXISTS doc_attrs (doc INTEGER, key VARCHAR, value VARCHAR);
+CREATE TABLE IF NOT EXISTS layers (name VARCHAR PRIMARY KEY, kind VARCHAR, props VARCHAR);
+CREATE TABLE IF NOT EXISTS layer_attrs (layer VARCHAR, attr VARCHAR, type VARCHAR,
+    n_distinct BIGINT, n_null BIGINT);
+CREATE TABLE IF NOT EXISTS parts (layer VARCHAR, path VARCHAR, rows BIGINT, import_id VARCHAR);
+CREATE TABLE IF NOT EXISTS imports (import_id VARCHAR, source VARCHAR, sha256 VARCHAR,
+    importer VARCHAR, options VARCHAR, imported_at VARCHAR);
+"""
+
+_ARROW_TYPE_NAMES = {
+    pa.string(): "str", pa.large_string(): "str", pa.int64(): "int", pa.int32(): "int",
+    pa.float64(): "float", pa.bool_(): "bool",
+}
+
+
+@dataclass(frozen=True)
+class DocInfo:
+    doc: int
+    name: str
+    base: int
+    length: int
+    text: str
+
+
+class Store:
+    """One corpus directory. Implements :class:`querylang.catalog.Catalog`."""
+
+    def __init__(self, root: Path) -> None:
+        self.root = Path(root)
+        self._catalog_cache: dict[str, LayerInfo] | None = None
+
+    # -- opening -----------------------------------------------------------------
+    @classmethod
+    def create(cls, path: str | os.PathLike) -> "Store":
+        root = Path(path)
+        if (root / CATALOG_FILE).exists():
+            raise StrataError(f"a corpus already exists at {root}")
+        if root.exists() and any(root.iterdir()):
+            raise StrataError(f"{root} exists and is not empty; choose a new folder for the corpus")
+        root.mkdir(parents=True, exist_ok=True)
+        with duckdb.connect(str(root / CATALOG_FILE)) as con:
+            con.execute(_CATALOG_DDL)
+            con.executemany("INSERT INTO meta VALUES (?, ?)", [
+                ("schema_version", SCHEMA_VERSION), ("next_id", "0"), ("next_base", "0"),
+                ("next_chain", "0"), ("created", _now())])
+        return cls(root)
+
+    @classmethod
+    def open(cls, path: str | os.PathLike) -> "Store":
+        root = Path(path)
+        if not (root / CATALOG_FILE).exists():
+            raise StrataError(f"no corpus at {root} (make one with: strata init {root})")
+        store = cls(root)
+        shutil.rmtree(root / "staging", ignore_errors=True)  # leftovers of a killed import
+        return store
+
+    def catalog_connection(self, read_only: bool = True) -> duckdb.DuckDBPyConnection:
+        return duckdb.connect(str(self.root / CATALOG_FILE), read_only=read_only)
+
+    # -- reading the catalog -----------------------------------------------------------
+    def _rows(self, sql: str, params: list | None = None) -> list[tuple]:
+        with self.catalog_connection() as con:
+            return con.execute(sql, params or []).fetchall()
+
+    def documents(self) -> list[DocInfo]:
+        return [DocInfo(*r) for r in self._rows(
+            "SELECT doc, name, base, length, text FROM documents ORDER BY doc")]
+
+    def document(self, name: str) -> DocInfo | None:
+        rows = self._rows("SELECT doc, name, base, length, text FROM documents WHERE name = ?", [name])
+        return DocInfo(*rows[0]) if rows else None
+
+    def layer_rows(self, layer: str) -> int:
+        return int(self._rows("SELECT coalesce(sum(rows), 0) FROM parts WHERE layer = ?", [layer])[0][0])
+
+    def part_paths(self, layer: str) -> list[Path]:
+        return [self.root / p for (p,) in self._rows(
+            "SELECT path FROM parts WHERE layer = ? ORDER BY path", [layer])]
+
+    def layers(self) -> dict[str, LayerInfo]:
+        """The catalog view of every layer and edge set (cached per Store)."""
+        if self._catalog_cache is None:
+            attrs: dict[str, dict[str, AttrInfo]] = {}
+            for layer, attr, typ, nd, nn in self._rows(
+                    "SELECT layer, attr, type, n_distinct, n_null FROM layer_attrs ORDER BY layer, attr"):
+                attrs.setdefault(layer, {})[attr] = AttrInfo(attr, typ, nd, nn)
+            rows = dict(self._rows("SELECT layer, sum(rows) FROM parts GROUP BY layer"))
+            out = {}
+            for name, kind, props_json in self._rows("SELECT name, kind, props FROM layers ORDER BY name"):
+                props = json.loads(props_json)
+                out[name] = LayerInfo(
+                    name=name, kind=kind, attrs=attrs.get(name, {}), rows=int(rows.get(name, 0) or 0),
+                    tree=bool(props.get("tree")), time=bool(props.get("time")),
+                    readings=bool(props.get("readings")), token_layer=props.get("token_layer"),
+                    word_layer=props.get("word_layer"), edge_sets=tuple(props.get("edge_sets", ())))
+            self._catalog_cache = out
+        return self._catalog_cache
+
+    def layer_props(self, name: str) -> dict:
+        rows = self._rows("SELECT props FROM layers WHERE name = ?", [name])
+        return json.loads(rows[0][0]) if rows else {}
+
+    def sentence_attrs(self) -> dict[str, AttrInfo]:
+        layer = self.layers().get("sentence")
+        return dict(layer.attrs) if layer else {}
+
+    def doc_attrs(self) -> dict[str, AttrInfo]:
+        keys = self._rows("SELECT key, count(DISTINCT value) FROM doc_attrs GROUP BY key ORDER BY key")
+        out = {"name": AttrInfo("name", "str")}
+        out.update({k: AttrInfo(k, "str", n) for k, n in keys})
+        return out
+
+    def meta(self, key: str) -> str | None:
+        rows = self._rows("SELECT value FROM meta WHERE key = ?", [key])
+        return rows[0][0] if rows else None
+
+    # -- query connection --------------------------------------------------------------
+    def connect(self) -> duckdb.DuckDBPyConnection:
+        """An in-memory DuckDB connection with the views of DEVELOPERS.md."""
+        con = duckdb.connect()
+        self.create_views(con)
+        return con
+
+    def create_views(self, con: duckdb.DuckDBPyConnection) -> None:
+        cat = str(self.root / CATALOG_FILE).replace("'", "''")
+        con.execute(f"ATTACH '{cat}' AS cat (READ_ONLY)")
+        con.execute("CREATE OR REPLACE VIEW documents AS SELECT * FROM cat.documents")
+        keys = [k for (k,) in con.execute("SELECT DISTINCT key FROM cat.doc_attrs ORDER BY key").fetchall()]
+        cols = "".join(f", max(a.value) FILTER (WHERE a.key = {_sql_str(k)}) AS {_ident(k)}" for k in keys)
+        con.execute(f"""CREATE OR REPLACE VIEW doc AS SELECT d.doc, d.name{cols}
+            FROM cat.documents d LEFT JOIN cat.doc_attrs a ON a.doc = d.doc GROUP BY d.doc, d.name""")
+        for name, kind in con.execute("SELECT name, kind FROM cat.layers").fetchall():
+            paths = [str(self.root / p) for (p,) in con.execute(
+                "SELECT path FROM cat.parts WHERE layer = ? ORDER BY path", [name]).fetchall()]
+            if not paths:
+                continue
+            files = "[" + ", ".join(_sql_str(p) for p in paths) + "]"
+            con.execute(f"CREATE OR REPLACE VIEW {_ident(name)} AS "
+                        f"SELECT * FROM read_parquet({files}, union_by_name = true)")
+
+    # -- writing ---------------------------------------------------------------------
+    @contextmanager
+    def batch(self, importer: str, options: dict | None = None) -> Iterator["Batch"]:
+        """Stage writes; commit them all on success, none on any exception."""
+        batch = Batch(self, importer, options or {})
+        try:
+            yield batch
+            batch._commit()
+        except BaseException:
+            batch._abort()
+            raise
+        finally:
+            self._catalog_cache = None
+
+
+class Batch:
+    """Staged writes of one import. Use through :meth:`Store.batch`."""
+
+    def __init__(self, store: Store, importer: str, options: dict) -> None:
+        self.store = store
+        self.import_id = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%S") + "-" + uuid.uuid4().hex[:8]
+        self.importer = importer
+        self.options = options
+        self.stage = store.root / "staging" / self.import_id
+        self.stage.mkdir(parents=True)
+        self._meta = {k: int(v) for k, v in store._rows(
+            "SELECT key, value FROM meta WHERE key IN ('next_id', 'next_base', 'next_chain')")}
+        self._docs: list[DocInfo] = []
+        self._doc_attrs: list[tuple[int, str, str]] = []
+        self._writers: dict[str, tuple[str, str, pq.ParquetWriter, Path]] = {}
+        self._rows: dict[str, int] = {}
+        self._layer_props: dict[str, tuple[str, dict]] = {}
+        self._sources: list[tuple[str, str]] = []
+        self._next_doc = int(store._rows("SELECT coalesce(max(doc) + 1, 0) FROM documents")[0][0])
+        self._finalisers: list = []
+
+    # ids and anchors
+    def alloc_ids(self, n: int) -> int:
+        """Reserve ``n`` consecutive node ids; returns the first."""
+        first = self._meta["next_id"]
+        self._meta["next_id"] += n
+        return first
+
+    def set_meta(self, key: str, value: int) -> None:
+        """Set a corpus-wide counter, written at commit (e.g. ``next_order``)."""
+        self._meta[key] = value
+
+    def alloc_chains(self, n: int) -> int:
+        first = self._meta["next_chain"]
+        self._meta["next_chain"] += n
+        return first
+
+    def existing_document(self, name: str) -> DocInfo | None:
+        for d in self._docs:
+            if d.name == name:
+                return d
+        return self.store.document(name)
+
+    def add_document(self, name: str, text: str, attrs: dict[str, str] | None = None) -> DocInfo:
+        """A new document at the end of the global coordinate line."""
+        if self.existing_document(name) is not None:
+            raise StrataError(f"document {name!r} is already in the corpus")
+        base = self._meta["next_base"]
+        info = DocInfo(self._next_doc, name, base, len(text), text)
+        self._next_doc += 1
+        self._meta["next_base"] = base + len(text) + DOC_GAP
+        self._docs.append(info)
+        for k, v in (attrs or {}).items():
+            self._doc_attrs.append((info.doc, k, v))
+        return info
+
+    def add_source(self, path: str, sha256: str) -> None:
+        self._sources.append((path, sha256))
+
+    # tables
+    def declare_layer(self, name: str, kind: str, props: dict | None = None) -> None:
+        if not _LAYER_NAME.fullmatch(name):
+            raise StrataError(f"layer name {name!r} is not allowed: use letters, digits, '_', '-' "
+                              "and '.' (for a prefix), starting with a letter")
+        existing = self.store._rows("SELECT kind, props FROM layers WHERE name = ?", [name])
+        if existing and existing[0][0] != kind:
+            raise StrataError(f"layer {name!r} exists already as a {existing[0][0]} layer, not {kind}")
+        merged = json.loads(existing[0][1]) if existing else {}
+        merged.update(props or {})
+        self._layer_props[name] = (kind, merged)
+
+    def write_nodes(self, layer: str, kind: str, table: pa.Table, props: dict | None = None) -> None:
+        """Append node rows; the anchor columns missing from ``table`` are added as NULL."""
+        if layer not in self._layer_props:
+            self.declare_layer(layer, kind, props)
+        self._write(layer, _with_columns(table, ANCHOR_COLUMNS))
+
+    def write_edges(self, edge_set: str, table: pa.Table, props: dict | None = None) -> None:
+        if edge_set not in self._layer_props:
+            self.declare_layer(edge_set, "edges", props)
+        self._write(edge_set, _with_columns(table, EDGE_COLUMNS))
+
+    def on_commit(self, fn) -> None:
+        """Run ``fn(batch)`` just before committing (e.g. to finalise staged tables)."""
+        self._finalisers.append(fn)
+
+    def _write(self, layer: str, table: pa.Table) -> None:
+        if table.num_rows == 0:
+            return
+        entry = self._writers.get(layer)
+        if entry is not None and not entry[2].schema.equals(table.schema):
+            entry[2].close()
+            entry = None
+        if entry is None:
+            n = len(list(self.stage.glob(f"{layer}--*.parquet")))
+            path = self.stage / f"{layer}--{n:05d}.parquet"
+            writer = pq.ParquetWriter(path, table.schema, compression="zstd")
+            entry = (layer, str(path), writer, path)
+            self._writers[layer] = entry
+        entry[2].write_table(table, row_group_size=ROW_GROUP_SIZE)
+        self._rows[entry[1]] = self._rows.get(entry[1], 0) + table.num_rows
+
+    def staged_paths(self, layer: str) -> list[Path]:
+        """Staged part files of a layer (closes its open writer)."""
+        entry = self._writers.pop(layer, None)
+        if entry is not None:
+            entry[2].close()
+        return sorted(self.stage.glob(f"{layer}--*.parquet"))
+
+    def replace_staged(self, layer: str, new_path: Path, rows: int) -> None:
+        """Swap the staged parts of ``layer`` for one rewritten file (see finalisers)."""
+        for p in self.staged_paths(layer):
+            if p != new_path:
+                self._rows.pop(str(p), None)
+                p.unlink()
+        final = self.stage / f"{layer}--00000.parquet"
+        if new_path != final:
+            new_path.rename(final)
+        self._rows[str(final)] = rows
+
+    # commit / abort
+    def _commit(self) -> None:
+        for fn in self._finalisers:
+            fn(self)
+        for layer in list(self._writers):
+            self.staged_paths(layer)
+        moved: list[Path] = []
+        parts: list[tuple[str, str, int, str]] = []
+        for staged in sorted(self.stage.glob("*.parquet")):
+            layer = staged.name.split("--")[0]
+            kind = self._layer_props[layer][0]
+            sub = "edges" if kind == "edges" else "layers"
+            dest_dir = self.store.root / sub / layer
+            dest_dir.mkdir(parents=True, exist_ok=True)
+            dest = dest_dir / f"{self.import_id}-{staged.name.split('--')[1]}"
+            parts.append((layer, str(dest.relative_to(self.store.root)), self._rows.get(str(staged), 0),
+                          self.import_id))
+        try:
+            for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
+                os.replace(staged, self.store.root / rel)
+                moved.append(self.store.root / rel)
+            self._write_catalog(parts)
+        except BaseException:
+            for p in moved:
+                p.unlink(missing_ok=True)
+            raise
+        shutil.rmtree(self.stage, ignore_errors=True)
+        _rmdir_if_empty(self.stage.parent)
+
+    def _write_catalog(self, parts: list[tuple[str, str, int, str]]) -> None:
+        with self.store.catalog_connection(read_only=False) as con:
+            con.execute("BEGIN TRANSACTION")
+            try:
+                for d in self._docs:
+                    con.execute("INSERT INTO documents VALUES (?, ?, ?, ?, ?, NULL)",
+                                [d.doc, d.name, d.base, d.length, d.text])
+                if self._doc_attrs:
+                    con.executemany("INSERT INTO doc_attrs VALUES (?, ?, ?)", self._doc_attrs)
+                for name, (kind, props) in self._layer_props.items():
+                    con.execute("INSERT OR REPLACE INTO layers VALUES (?, ?, ?)", [name, kind, json.dumps(props)])
+                if parts:
+                    con.executemany("INSERT INTO parts VALUES (?, ?, ?, ?)", parts)
+                for src, sha in self._sources:
+                    con.execute("INSERT INTO imports VALUES (?, ?, ?, ?, ?, ?)",
+                                [self.import_id, src, sha, self.importer, json.dumps(self.options), _now()])
+                for k, v in self._meta.items():
+                    con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", [k, str(v)])
+                self._refresh_stats(con, {p[0] for p in parts})
+                con.execute("COMMIT")
+            except BaseException:
+                con.execute("ROLLBACK")
+                raise
+
+    def _refresh_stats(self, con: duckdb.DuckDBPyConnection, layers: set[str]) -> None:
+        """Per-attribute distinct and null counts: the compiler's selectivity estimates."""
+        for layer in sorted(layers):
+            paths = [str(self.store.root / p) for (p,) in con.execute(
+                "SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
+            files = "[" + ", ".join(_sql_str(p) for p in paths) + "]"
+            rel = f"read_parquet({files}, union_by_name = true)"
+            schema = con.execute(f"DESCRIBE SELECT * FROM {rel}").fetchall()
+            cols = [(c, t) for c, t, *_ in schema if c not in STRUCTURAL]
+            con.execute("DELETE FROM layer_attrs WHERE layer = ?", [layer])
+            if not cols:
+                continue
+            exprs = ", ".join(f"approx_count_distinct({_ident(c)}), count(*) - count({_ident(c)})" for c, _ in cols)
+            values = con.execute(f"SELECT {exprs} FROM {rel}").fetchone()
+            rows = [(layer, c, _duck_type_name(t), int(values[2 * i]), int(values[2 * i + 1]))
+                    for i, (c, t) in enumerate(cols)]
+            con.executemany("INSERT INTO layer_attrs VALUES (?, ?, ?, ?, ?)", rows)
+
+    def _abort(self) -> None:
+        for _, _, writer, _ in self._writers.values():
+            try:
+                writer.close()
+            except Exception:
+                pass
+        self._writers.clear()
+        shutil.rmtree(self.stage, ignore_errors=True)
+        _rmdir_if_empty(self.stage.parent)
+
+
+# -- helpers ----------------------------------------------------------------------------
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def _ident(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
+
+
+def _sql_str(value: str) -> str:
+    return "'" + value.replace("'", "''") + "'"
+
+
+def _rmdir_if_empty(path: Path) -> None:
+    try:
+        path.rmdir()
+    except OSError:
+        pass
+
+
+def _duck_type_name(t: str) -> str:
+    t = t.upper()
+    if t in ("BIGINT", "INTEGER", "SMALLINT", "TINYINT", "HUGEINT", "UBIGINT", "UINTEGER"):
+        return "int"
+    if t in ("DOUBLE", "FLOAT", "REAL") or t.startswith("DECIMAL"):
+        return "float"
+    if t == "BOOLEAN":
+        return "bool"
+    return "str"
+
+
+def _with_columns(table: pa.Table, required: dict[str, pa.DataType]) -> pa.Table:
+    """Add missing required columns as NULL and cast present ones to their type."""
+    n = table.num_rows
+    cols, names = [], []
+    for name, typ in required.items():
+        if name in table.column_names:
+            col = table.column(name)
+            cols.append(col.cast(typ) if col.type != typ else col)
+        else:
+            cols.append(pa.nulls(n, typ))
+        names.append(name)
+    for name in table.column_names:
+        if name not in required:
+            cols.append(table.column(name))
+            names.append(name)
+    return pa.Table.from_arrays(cols, names=names)
