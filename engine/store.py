@@ -242,6 +242,8 @@ class Batch:
         self._sources: list[tuple[str, str]] = []
         self._next_doc = int(store._rows("SELECT coalesce(max(doc) + 1, 0) FROM documents")[0][0])
         self._finalisers: list = []
+        self._replaced: set[str] = set()
+        self._durations: dict[int, float] = {}
 
     # ids and anchors
     def alloc_ids(self, n: int) -> int:
@@ -278,6 +280,10 @@ class Batch:
             self._doc_attrs.append((info.doc, k, v))
         return info
 
+    def set_duration(self, doc: int, seconds: float) -> None:
+        """Record the length of a document's recording (from its time-aligned tiers)."""
+        self._durations[doc] = seconds
+
     def add_source(self, path: str, sha256: str) -> None:
         self._sources.append((path, sha256))
 
@@ -303,6 +309,31 @@ class Batch:
         if edge_set not in self._layer_props:
             self.declare_layer(edge_set, "edges", props)
         self._write(edge_set, _with_columns(table, EDGE_COLUMNS))
+
+    def replace_layer(self, layer: str, table_or_path) -> None:
+        """Stage a full new content for an existing layer (e.g. with time spans added).
+
+        At commit its old parts leave the catalog and the new part takes their place, in
+        the same transaction as everything else; the old files are deleted afterwards.
+        ``table_or_path`` is an Arrow table, or a Parquet file written under ``self.stage``.
+        """
+        if layer not in self._layer_props:
+            rows = self.store._rows("SELECT kind, props FROM layers WHERE name = ?", [layer])
+            if not rows:
+                raise StrataError(f"no layer {layer!r} to replace")
+            self._layer_props[layer] = (rows[0][0], json.loads(rows[0][1]))
+        for p in self.staged_paths(layer):
+            self._rows.pop(str(p), None)
+            p.unlink()
+        if isinstance(table_or_path, pa.Table):
+            self._write(layer, table_or_path)
+            self.staged_paths(layer)
+        else:
+            path = Path(table_or_path)
+            final = self.stage / f"{layer}--00000.parquet"
+            path.rename(final)
+            self._rows[str(final)] = pq.ParquetFile(final).metadata.num_rows
+        self._replaced.add(layer)
 
     def on_commit(self, fn) -> None:
         """Run ``fn(batch)`` just before committing (e.g. to finalise staged tables)."""
@@ -363,21 +394,30 @@ class Batch:
             for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
                 os.replace(staged, self.store.root / rel)
                 moved.append(self.store.root / rel)
-            self._write_catalog(parts)
+            old = self._write_catalog(parts)
         except BaseException:
             for p in moved:
                 p.unlink(missing_ok=True)
             raise
+        for rel in old:
+            (self.store.root / rel).unlink(missing_ok=True)
         shutil.rmtree(self.stage, ignore_errors=True)
         _rmdir_if_empty(self.stage.parent)
 
-    def _write_catalog(self, parts: list[tuple[str, str, int, str]]) -> None:
+    def _write_catalog(self, parts: list[tuple[str, str, int, str]]) -> list[str]:
+        """Record everything in one transaction; returns the replaced parts' paths."""
         with self.store.catalog_connection(read_only=False) as con:
             con.execute("BEGIN TRANSACTION")
             try:
+                old: list[str] = []
+                for layer in sorted(self._replaced):
+                    old += [p for (p,) in con.execute("SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
+                    con.execute("DELETE FROM parts WHERE layer = ?", [layer])
                 for d in self._docs:
                     con.execute("INSERT INTO documents VALUES (?, ?, ?, ?, ?, NULL)",
                                 [d.doc, d.name, d.base, d.length, d.text])
+                for doc, seconds in self._durations.items():
+                    con.execute("UPDATE documents SET duration = ? WHERE doc = ?", [seconds, doc])
                 if self._doc_attrs:
                     con.executemany("INSERT INTO doc_attrs VALUES (?, ?, ?)", self._doc_attrs)
                 for name, (kind, props) in self._layer_props.items():
@@ -394,6 +434,7 @@ class Batch:
             except BaseException:
                 con.execute("ROLLBACK")
                 raise
+        return old
 
     def _refresh_stats(self, con: duckdb.DuckDBPyConnection, layers: set[str]) -> None:
         """Per-attribute distinct and null counts: the compiler's selectivity estimates."""
