@@ -187,6 +187,8 @@ class Store:
     def connect(self) -> duckdb.DuckDBPyConnection:
         """An in-memory DuckDB connection with the views of DEVELOPERS.md."""
         con = duckdb.connect()
+        # a missing view must be an error, never a Python variable of the same name
+        con.execute("SET python_enable_replacements = false")
         self.create_views(con)
         return con
 

@@ -42,7 +42,7 @@ def export(store: Store, out: TextIO, layer_prefix: str = "") -> int:
         f"mwt_fields || chr(9) || coalesce(misc, '_') FROM {word} WHERE mwt",
         f"SELECT sent, 2147483647, 0, 0, '' FROM {sent}",
     ]
-    if L("empty") in layers:
+    if L("empty") in layers and layers[L("empty")].rows:
         empty_line = token_line.replace(f.format("CAST(head_num AS VARCHAR)"), "'_'").replace(
             f.format("deprel"), "'_'")
         parts.append(f"SELECT sent, CAST(split_part(cid, '.', 1) AS INTEGER), 2, "

@@ -155,7 +155,7 @@ class ConlluImporter:
                         if line.startswith("# newdoc"):
                             if doc is not None and doc.sentences:
                                 self._finish_doc(doc)
-                            doc = _Doc(self._newdoc_name(line, number), number)
+                            doc = self._start_doc(self._newdoc_name(line, number), number)
                         comments.append(line)
                     else:
                         if not comments and not rows:
@@ -174,6 +174,13 @@ class ConlluImporter:
             if doc is not None and doc.sentences:
                 self._finish_doc(doc)
 
+    def _start_doc(self, name: str, line: int) -> _Doc:
+        existing = self.batch.existing_document(name)
+        if existing is not None and self.batch.store.layer_rows(self.names["token"]) and self._doc_has_tokens(existing):
+            raise StrataError(f"document {name!r} already has a {self.names['token']!r} layer; "
+                              "import a second annotation of it with --prefix NAME", file=str(self.path), line=line)
+        return _Doc(name, line)
+
     def _newdoc_name(self, line: str, number: int) -> str:
         head, sep, value = line.partition("=")
         if not sep or head.strip() != "# newdoc id" or not value.strip():
@@ -186,7 +193,7 @@ class ConlluImporter:
         if not sent.rows:
             self._fail("comment lines with no token lines after them", sent.first_line)
         if doc is None:
-            doc = _Doc(self.path.stem, sent.first_line)
+            doc = self._start_doc(self.path.stem, sent.first_line)
         doc.sentences.append(sent)
         if not doc.attrs and len(doc.sentences) == 1:
             doc.attrs = self._doc_attrs(sent.comments)
@@ -262,9 +269,6 @@ class ConlluImporter:
                 f"document {doc.name!r} is already in the corpus with a different text "
                 f"(first difference at character {at}: {existing.text[at:at + 20]!r} vs {text[at:at + 20]!r}); "
                 "layers of the same document must share its primary text", file=str(self.path), line=doc.line)
-        if self.batch.store.layer_rows(self.names["token"]) and self._doc_has_tokens(existing):
-            raise StrataError(f"document {doc.name!r} already has a {self.names['token']!r} layer; "
-                              "import a second annotation with --prefix NAME", file=str(self.path), line=doc.line)
         return existing
 
     def _doc_has_tokens(self, info: DocInfo) -> bool:

@@ -1,0 +1,30 @@
+"""Shared fixtures: the open treebank read in place, and fresh corpora."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+REPO = Path(__file__).resolve().parents[1]
+GUM = REPO.parent / "shared" / "data" / "ud-english-gum"
+GUM_FILES = {"dev": GUM / "en_gum-ud-dev.conllu", "test": GUM / "en_gum-ud-test.conllu"}
+
+
+def gum_file(split: str) -> Path:
+    path = GUM_FILES[split]
+    if not path.exists():
+        pytest.skip(f"the treebank is not at {path} (../shared is absent): real-data check skipped")
+    return path
+
+
+@pytest.fixture(scope="session")
+def gum_corpora(tmp_path_factory):
+    """Both treebank splits, each imported once into its own corpus."""
+    from engine import Corpus
+    out = {}
+    for split in ("dev", "test"):
+        path = gum_file(split)
+        c = Corpus.create(tmp_path_factory.mktemp(f"gum-{split}") / "corpus")
+        report = c.import_files([path], progress=False)
+        out[split] = (c, report, path)
+    return out
