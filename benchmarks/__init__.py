@@ -1,0 +1,1 @@
+"""Benchmarks: synthetic corpus generator, import benchmark, query suite harness."""
