@@ -1,0 +1,97 @@
+"""Run a query: compile it through querylang's passes, execute the SQL on DuckDB, return Hits.
+
+The connection must already have the views of DEVELOPERS.md (one per layer and edge set,
+``documents`` and ``doc``).  Errors in the query are StrataError; a DuckDB error caused by
+the user's input (a regular expression DuckDB's RE2 refuses, a value that does not cast)
+is also turned into a StrataError, so the command line never shows a traceback.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import duckdb
+
+from engine.errors import StrataError
+from engine.results import Hits
+from querylang.ast import Query
+from querylang.catalog import Catalog
+from querylang.pipeline import Compilation, run_passes
+
+
+@dataclass(frozen=True)
+class CompiledQuery:
+    """A query ready to run: its AST, the SQL text, the bound parameters, result columns."""
+
+    text: str
+    state: Compilation
+
+    @property
+    def ast(self) -> Query:
+        return self.state.checked.query
+
+    @property
+    def sql(self) -> str:
+        return self.state.sql.sql
+
+    @property
+    def params(self) -> list[object]:
+        return list(self.state.sql.params)
+
+    @property
+    def columns(self) -> list[str]:
+        return list(self.state.sql.columns)
+
+    @property
+    def kind(self) -> str:
+        return self.state.sql.kind
+
+    def explain_text(self) -> str:
+        """What each pass made of the query: variables, join order with estimates, SQL, parameters."""
+        st = self.state
+        lines = ["query:", *("  " + line for line in self.text.strip().splitlines()), "", "variables:"]
+        for var, info in st.checked.layers.items():
+            est = st.plan.estimates.get(var, 0.0)
+            lines.append(f"  {var} = {info.name} ({info.kind}, {info.rows} rows, ~{est:.0f} after its tests)")
+        for i, inner in enumerate(st.checked.inner_layers):
+            for var, info in inner.items():
+                lines.append(f"  {var} = {info.name} (without clause {i + 1}: must not exist)")
+        lines += ["", "join order: " + " -> ".join(st.plan.order),
+                  "qualifiers: " + (", ".join(sorted(st.checked.query.qualifiers)) or "none"),
+                  f"result: {self.kind}, columns: {', '.join(self.columns)}", "", "sql:"]
+        lines += ["  " + part for part in _pretty_sql(self.sql)]
+        lines += ["", "parameters:"]
+        lines += [f"  ${i + 1} = {p!r}" for i, p in enumerate(self.params)] or ["  none"]
+        return "\n".join(lines)
+
+
+def _pretty_sql(sql: str) -> list[str]:
+    """One clause per line, for reading (the SQL holds no literals, so no quoting to respect)."""
+    broken = re.sub(r" (ASOF LEFT JOIN|LEFT JOIN|FROM|WHERE|ORDER BY|GROUP BY|LIMIT) ", r"\n\1 ", sql)
+    return [line.rstrip() for line in broken.splitlines()]
+
+
+def compile_query(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5) -> CompiledQuery:
+    """Parse, check, plan and translate ``text``; raises StrataError on any mistake in it."""
+    if context < 0:
+        raise StrataError("context must be 0 or more words")
+    if limit is not None and limit < 0:
+        raise StrataError("limit must not be negative")
+    return CompiledQuery(text, run_passes(text, catalog, limit=limit, context=context))
+
+
+def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
+              limit: int | None = None, context: int = 5) -> Hits:
+    """Every match of ``text`` in document order (or the aggregate it asks for)."""
+    compiled = compile_query(text, catalog, limit=limit, context=context)
+    try:
+        table = con.sql(compiled.sql, params=compiled.params).to_arrow_table()
+    except (duckdb.InvalidInputException, duckdb.ConversionException) as err:
+        raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
+                          line=1, column=1) from None
+    table = table.rename_columns(compiled.columns)
+    return Hits(table, compiled.kind, text, compiled.sql)
+
+
+def _first_line(err: Exception) -> str:
+    return str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__

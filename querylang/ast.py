@@ -1,0 +1,261 @@
+"""The query as data: frozen dataclasses built by the parser, refined by the checker.
+
+The parser leaves every attribute reference as a :class:`Path` (names as written);
+the checker replaces each with a :class:`Ref` that says which variable, which kind of
+value (a column, a sentence or document attribute, a derived value) and its type, so
+the compiler never has to look names up again.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Union
+
+
+@dataclass(frozen=True)
+class Pos:
+    """1-based line and column in the query text (for error carets)."""
+
+    line: int = 1
+    column: int = 1
+
+
+NOWHERE = Pos()
+
+
+# ---- values -----------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Literal:
+    """A string, number (with an optional unit such as ``ms`` or ``words``) or boolean."""
+
+    value: str | int | float | bool
+    unit: str | None = None
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Path:
+    """A dotted name as written: ``v.lemma``, ``feats.Number``, ``sentence.speaker``."""
+
+    parts: tuple[str, ...]
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+    @property
+    def text(self) -> str:
+        return ".".join(self.parts)
+
+
+@dataclass(frozen=True)
+class Ref:
+    """A resolved reference to a value of a variable's node.
+
+    kind: ``column`` (a column of the layer), ``sentence`` / ``doc`` (an attribute of the
+    node's sentence or document), ``text`` (covered text), ``time`` (``start``, ``end``,
+    ``duration`` in seconds).
+    """
+
+    var: str
+    kind: str
+    name: str
+    type: str
+    pos: Pos = field(default=NOWHERE, compare=False)
+    written: str = field(default="", compare=False)
+
+
+@dataclass(frozen=True)
+class Func:
+    """``distance(a, b)`` (words between) or ``gap(a, b)`` (seconds between)."""
+
+    name: str
+    a: str
+    b: str
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+Expr = Union[Literal, Path, Ref, Func]
+
+
+# ---- conditions -------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Compare:
+    op: str
+    left: Expr
+    right: Expr
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class InList:
+    expr: Expr
+    values: tuple[Literal, ...]
+    negated: bool = False
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Matches:
+    """Regular-expression search (``matches`` or ``~``), unanchored unless the pattern says."""
+
+    expr: Expr
+    pattern: Literal
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Missing:
+    expr: Expr
+    negated: bool = False
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class FirstMention:
+    """The node is the first mention of its coreference chain."""
+
+    subject: Expr | None
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Relation:
+    """``left <name> right`` with optional modifiers.
+
+    within: tolerance/maximum distance (a Literal with a unit); depth: (lo, hi) for
+    ``under``/``above``; label: dependency label; via: edge set; in_time: the Allen
+    reading of ``overlaps``/``contains``.
+    """
+
+    name: str
+    left: Expr
+    right: Expr
+    within: Literal | None = None
+    depth: tuple[int, int] | None = None
+    label: Literal | None = None
+    via: str | None = None
+    in_time: bool = False
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class And:
+    items: tuple["Cond", ...]
+
+
+@dataclass(frozen=True)
+class Or:
+    items: tuple["Cond", ...]
+
+
+@dataclass(frozen=True)
+class Not:
+    item: "Cond"
+
+
+Cond = Union[Compare, InList, Matches, Missing, FirstMention, Relation, And, Or, Not]
+
+
+# ---- clauses ----------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Binding:
+    """``var = layer(cond)``; inside the parentheses names are the node's own attributes."""
+
+    var: str
+    layer: str
+    cond: Cond | None = None
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Without:
+    """No nodes matching these bindings and condition exist."""
+
+    bindings: tuple[Binding, ...]
+    cond: Cond | None = None
+
+
+@dataclass(frozen=True)
+class ShowItem:
+    expr: Expr
+    label: str
+
+
+@dataclass(frozen=True)
+class Show:
+    items: tuple[ShowItem, ...]
+
+
+@dataclass(frozen=True)
+class Count:
+    by: tuple[ShowItem, ...] = ()
+
+
+@dataclass(frozen=True)
+class Aggregate:
+    func: str               # mean, min, max, sum
+    expr: ShowItem
+    by: tuple[ShowItem, ...] = ()
+
+
+Output = Union[Show, Count, Aggregate]
+
+
+@dataclass(frozen=True)
+class Query:
+    bindings: tuple[Binding, ...]
+    where: Cond | None = None
+    withouts: tuple[Without, ...] = ()
+    qualifiers: frozenset[str] = frozenset()   # "same reading", "every reading", "cross product"
+    output: Output | None = None
+    limit: int | None = None
+
+
+def conjuncts(cond: Cond | None) -> list[Cond]:
+    """The top-level AND items of a condition (empty for None)."""
+    if cond is None:
+        return []
+    if isinstance(cond, And):
+        out: list[Cond] = []
+        for item in cond.items:
+            out.extend(conjuncts(item))
+        return out
+    return [cond]
+
+
+def refs_in(node: object) -> list[Ref]:
+    """Every resolved Ref inside a condition or expression, in order."""
+    if isinstance(node, Ref):
+        return [node]
+    if isinstance(node, (Literal, Path)) or node is None:
+        return []
+    if isinstance(node, Func):
+        return []
+    out: list[Ref] = []
+    for name in getattr(node, "__dataclass_fields__", {}):
+        value = getattr(node, name)
+        if isinstance(value, tuple):
+            for v in value:
+                out.extend(refs_in(v))
+        elif hasattr(value, "__dataclass_fields__"):
+            out.extend(refs_in(value))
+    return out
+
+
+def vars_in(node: object) -> set[str]:
+    """Variables a condition or expression mentions (refs, relations, functions)."""
+    if node is None or isinstance(node, (Literal, Path)):
+        return set()
+    if isinstance(node, Ref):
+        return {node.var}
+    if isinstance(node, Func):
+        return {node.a, node.b}
+    out: set[str] = set()
+    for name in getattr(node, "__dataclass_fields__", {}):
+        value = getattr(node, name)
+        if isinstance(value, tuple):
+            for v in value:
+                out |= vars_in(v)
+        elif hasattr(value, "__dataclass_fields__"):
+            out |= vars_in(value)
+    return out

@@ -1,0 +1,474 @@
+"""Names and types against the catalog: the pass that turns a parsed query into a safe one.
+
+Every attribute name is resolved to a catalog column (so the compiler can only ever emit
+identifiers the catalog knows), every relation is checked against the layers it joins,
+and mistakes become a :class:`StrataError` pointing at the place, with "did you mean"
+suggestions from :mod:`difflib`.
+"""
+from __future__ import annotations
+
+import difflib
+import re
+from dataclasses import dataclass, field, replace
+
+from engine.errors import StrataError
+from querylang import ast
+from querylang.catalog import AttrInfo, Catalog, LayerInfo
+
+TEXT_RELATIONS = {"inside", "contains", "overlaps", "same span as", "precedes", "follows",
+                  "directly precedes", "directly follows"}
+TREE_RELATIONS = {"child of", "parent of", "under", "above", "sibling of"}
+DEPENDENCY_RELATIONS = {"depends on", "governs"}
+COREF_RELATIONS = {"same entity as", "antecedent of", "previous mention of"}
+# Allen (1983): the thirteen interval relations.
+TIME_RELATIONS = {"before", "after", "meets", "met by", "overlaps", "overlapped by", "starts",
+                  "started by", "during", "contains", "finishes", "finished by", "equals"}
+TIME_ONLY = TIME_RELATIONS - TEXT_RELATIONS   # the ones that need no "in time"
+
+TIME_UNITS = {"ms": 0.001, "s": 1.0}
+LENGTH_UNITS = {"words", "tokens", "chars"}
+
+ANCHOR_COLUMNS = {"id": "int", "doc": "int", "sent": "int", "t_start": "float", "t_end": "float",
+                  "tok_first": "int", "tok_last": "int", "word_first": "int", "word_last": "int"}
+TREE_COLUMNS = {"parent": "int", "depth": "int", "pre": "int", "post": "int"}
+# Derived values: written like attributes, computed by the compiler.
+DERIVED = {"text": ("text", "str"), "start": ("time", "time"), "end": ("time", "time"),
+           "duration": ("time", "time"), "char_start": ("offset", "int"), "char_end": ("offset", "int")}
+
+NUMERIC = {"int", "float", "time", "length"}
+
+
+@dataclass(frozen=True)
+class Checked:
+    """A query whose names are all resolved, with the layer of every variable."""
+
+    query: ast.Query
+    layers: dict[str, LayerInfo]                     # outer variables, in find order
+    inner_layers: tuple[dict[str, LayerInfo], ...]  # variables of each without clause
+    catalog: Catalog = field(compare=False)
+    text: str = ""
+
+
+def columns_of(layer: LayerInfo) -> dict[str, str]:
+    """Every column a query may name on this layer, with its type."""
+    cols = dict(ANCHOR_COLUMNS)
+    if layer.kind == "token":
+        cols["ord"] = "int"
+    if layer.tree:
+        cols.update(TREE_COLUMNS)
+    if layer.readings:
+        cols["reading"] = "int"
+    for name, info in layer.attrs.items():
+        cols[name] = info.type
+    return cols
+
+
+def suggest(name: str, candidates: list[str] | set[str]) -> str | None:
+    """A "did you mean" hint, or None when nothing is close."""
+    close = difflib.get_close_matches(name, sorted(candidates), n=3, cutoff=0.6)
+    if not close:
+        return None
+    return "did you mean: " + ", ".join(close) + "?"
+
+
+class _Checker:
+    def __init__(self, catalog: Catalog, text: str) -> None:
+        self.catalog = catalog
+        self.text = text
+        self.all_layers = catalog.layers()
+
+    # ---- errors --------------------------------------------------------------
+    def fail(self, message: str, pos: ast.Pos | None, hint: str | None = None) -> None:
+        pos = pos or ast.NOWHERE
+        raise StrataError(message, query=self.text, line=pos.line, column=pos.column, hint=hint)
+
+    # ---- bindings --------------------------------------------------------------
+    def layer(self, binding: ast.Binding) -> LayerInfo:
+        info = self.all_layers.get(binding.layer)
+        node_layers = [n for n, l in self.all_layers.items() if l.kind != "edges"]
+        if info is None:
+            hint = suggest(binding.layer, node_layers) or "layers: " + ", ".join(sorted(node_layers))
+            self.fail(f"unknown layer {binding.layer!r}", binding.pos, hint)
+        if info.kind == "edges":
+            self.fail(f"{binding.layer!r} is an edge set, not a layer of nodes; use it with "
+                      f"`depends on ... via {binding.layer}`", binding.pos)
+        return info
+
+    def bind(self, bindings: tuple[ast.Binding, ...], scope: dict[str, LayerInfo]) -> dict[str, LayerInfo]:
+        own: dict[str, LayerInfo] = {}
+        for b in bindings:
+            if b.var in scope or b.var in own:
+                self.fail(f"variable {b.var!r} is defined twice", b.pos)
+            own[b.var] = self.layer(b)
+        return own
+
+    # ---- references ------------------------------------------------------------
+    def resolve_attr(self, var: str, layer: LayerInfo, parts: tuple[str, ...], pos: ast.Pos,
+                     written: str) -> ast.Ref:
+        if len(parts) > 1 and parts[0] == "sentence":
+            return self._extra(var, "sentence", ".".join(parts[1:]), self.catalog.sentence_attrs(), pos, written)
+        if len(parts) > 1 and parts[0] == "doc":
+            return self._extra(var, "doc", ".".join(parts[1:]), self.catalog.doc_attrs(), pos, written)
+        name = ".".join(parts)
+        cols = columns_of(layer)
+        if name in cols:
+            return ast.Ref(var, "column", name, cols[name], pos, written)
+        if name in DERIVED:
+            kind, typ = DERIVED[name]
+            if kind == "time" and not layer.time:
+                self.fail(f"layer {layer.name!r} has no time stamps, so {written!r} has no value", pos)
+            return ast.Ref(var, kind, name, typ, pos, written)
+        hint = suggest(name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
+                       | {"doc." + d for d in self.catalog.doc_attrs()})
+        self.fail(f"layer {layer.name!r} has no attribute {name!r}", pos, hint)
+        raise AssertionError
+
+    def _extra(self, var: str, kind: str, name: str, attrs: dict[str, AttrInfo], pos: ast.Pos,
+               written: str) -> ast.Ref:
+        if name not in attrs:
+            self.fail(f"{'sentences' if kind == 'sentence' else 'documents'} have no attribute {name!r}",
+                      pos, suggest(name, set(attrs)) or (f"{kind} attributes: " + ", ".join(sorted(attrs)) if attrs else None))
+        return ast.Ref(var, kind, name, attrs[name].type, pos, written)
+
+    def node(self, expr: ast.Expr, scope: dict[str, LayerInfo]) -> ast.Ref:
+        """A relation operand: a bare variable name."""
+        if isinstance(expr, ast.Path) and len(expr.parts) == 1:
+            name = expr.parts[0]
+            if name not in scope:
+                self.fail(f"unknown variable {name!r}", expr.pos,
+                          suggest(name, set(scope)) or "variables: " + ", ".join(scope))
+            return ast.Ref(name, "node", "", "node", expr.pos, name)
+        self.fail("a relation joins two variables; write a variable name here, e.g. `a inside b`",
+                  getattr(expr, "pos", None))
+        raise AssertionError
+
+    def expr(self, expr: ast.Expr, scope: dict[str, LayerInfo], own: str | None) -> ast.Expr:
+        """Resolve a value; ``own`` is the variable whose binding parentheses we are in."""
+        if isinstance(expr, ast.Literal):
+            return expr
+        if isinstance(expr, ast.Func):
+            for v in (expr.a, expr.b):
+                if v not in scope:
+                    self.fail(f"unknown variable {v!r} in {expr.name}()", expr.pos, suggest(v, set(scope)))
+            if expr.name == "gap":
+                for v in (expr.a, expr.b):
+                    if not scope[v].time:
+                        self.fail(f"gap() needs time stamps; layer {scope[v].name!r} has none", expr.pos)
+            return expr
+        assert isinstance(expr, ast.Path)
+        if own is not None:
+            return self.resolve_attr(own, scope[own], expr.parts, expr.pos, expr.text)
+        var = expr.parts[0]
+        if var not in scope:
+            self.fail(f"unknown variable {var!r}", expr.pos,
+                      suggest(var, set(scope)) or "variables: " + ", ".join(scope))
+        if len(expr.parts) == 1:
+            self.fail(f"{var!r} is a node; name one of its values, e.g. {var}.text", expr.pos)
+        return self.resolve_attr(var, scope[var], expr.parts[1:], expr.pos, expr.text)
+
+    # ---- conditions --------------------------------------------------------------
+    def cond(self, cond: ast.Cond, scope: dict[str, LayerInfo], own: str | None) -> ast.Cond:
+        if isinstance(cond, ast.And):
+            return ast.And(tuple(self.cond(c, scope, own) for c in cond.items))
+        if isinstance(cond, ast.Or):
+            return ast.Or(tuple(self.cond(c, scope, own) for c in cond.items))
+        if isinstance(cond, ast.Not):
+            return ast.Not(self.cond(cond.item, scope, own))
+        if isinstance(cond, ast.Compare):
+            left, right = self.expr(cond.left, scope, own), self.expr(cond.right, scope, own)
+            self.compatible(left, right, cond.op, cond.pos)
+            return replace(cond, left=left, right=right)
+        if isinstance(cond, ast.InList):
+            expr = self.expr(cond.expr, scope, own)
+            if not cond.values:
+                self.fail("an empty list matches nothing; give at least one value", cond.pos)
+            for v in cond.values:
+                self.compatible(expr, v, "in", v.pos)
+            return replace(cond, expr=expr)
+        if isinstance(cond, ast.Matches):
+            expr = self.expr(cond.expr, scope, own)
+            if _type(expr) != "str":
+                self.fail(f"a regular expression needs a text value, but {_written(expr)} is {_type_name(expr)}",
+                          cond.pos, "compare numbers with =, <, > instead")
+            try:
+                re.compile(str(cond.pattern.value))
+            except re.error as err:
+                self.fail(f"bad regular expression: {err}", cond.pattern.pos)
+            return replace(cond, expr=expr)
+        if isinstance(cond, ast.Missing):
+            return replace(cond, expr=self.expr(cond.expr, scope, own))
+        if isinstance(cond, ast.FirstMention):
+            if cond.subject is None:
+                if own is None:
+                    self.fail("write `v is first mention` in a where clause", cond.pos)
+                var = own
+            else:
+                if own is not None:
+                    self.fail("inside a binding write just `first mention`", cond.pos)
+                var = self.node(cond.subject, scope).var
+            self.coref_layer(scope[var], cond.pos, need_first=True)
+            return ast.FirstMention(ast.Ref(var, "node", "", "node", cond.pos, var), cond.pos)
+        if isinstance(cond, ast.Relation):
+            if own is not None:
+                self.fail("relations between variables belong in the where clause", cond.pos)
+            return self.relation(cond, scope)
+        raise AssertionError(f"unknown condition {cond!r}")
+
+    def compatible(self, left: ast.Expr, right: ast.Expr, op: str, pos: ast.Pos) -> None:
+        """Explain a comparison that cannot mean anything (text vs number, wrong unit)."""
+        for a, b in ((left, right), (right, left)):
+            if isinstance(b, ast.Literal):
+                ta = _type(a)
+                if b.unit is not None:
+                    if b.unit in TIME_UNITS and ta != "time":
+                        self.fail(f"{_written(a)} is {_type_name(a)}, so the time unit {b.unit!r} does not apply",
+                                  b.pos, "time units go with start, end, duration and gap(a, b)")
+                    if b.unit in LENGTH_UNITS and ta != "length":
+                        self.fail(f"{_written(a)} is {_type_name(a)}, so the unit {b.unit!r} does not apply",
+                                  b.pos, "word, token and char units go with distance(a, b)")
+                    continue
+                tb = _type(b)
+                if ta == "str" and tb in NUMERIC:
+                    self.fail(f"{_written(a)} is text but {b.value!r} is a number", b.pos,
+                              f'quote it: "{b.value}"')
+                if ta in NUMERIC and tb == "str":
+                    self.fail(f"{_written(a)} is a number but {b.value!r} is text", b.pos,
+                              "write the number without quotes")
+                if ta == "bool" and tb != "bool":
+                    self.fail(f"{_written(a)} is true or false", b.pos, "compare with true or false")
+                if ta != "bool" and tb == "bool" and ta != "literal":
+                    self.fail(f"{_written(a)} is not true/false", b.pos)
+        if op in ("<", "<=", ">", ">=") and "bool" in (_type(left), _type(right)):
+            self.fail("true/false values have no order", pos)
+
+    def coref_layer(self, layer: LayerInfo, pos: ast.Pos, need_first: bool = False) -> None:
+        need = ["chain", "chain_pos"] + (["first_mention"] if need_first else [])
+        missing = [c for c in need if c not in layer.attrs]
+        if missing:
+            self.fail(f"layer {layer.name!r} has no coreference chains (no {', '.join(missing)} column)", pos,
+                      "coreference relations work on mention layers")
+
+    def relation(self, rel: ast.Relation, scope: dict[str, LayerInfo]) -> ast.Relation:
+        left, right = self.node(rel.left, scope), self.node(rel.right, scope)
+        la, lb = scope[left.var], scope[right.var]
+        name = rel.name
+        is_time = name in TIME_ONLY or (name in ("overlaps", "contains") and rel.in_time)
+        if rel.in_time and not is_time:
+            self.fail(f"`{name}` is not a time relation; `in time` goes with Allen's relations", rel.pos)
+        if rel.depth is not None and name not in ("under", "above"):
+            self.fail("`at depth` goes with `under` and `above`", rel.pos)
+        if rel.depth is not None and not (1 <= rel.depth[0] <= rel.depth[1]):
+            self.fail("depth range must be 1..n with the smaller number first", rel.pos)
+        if (rel.label is not None or rel.via is not None) and name not in DEPENDENCY_RELATIONS:
+            self.fail("`as` and `via` go with `depends on` and `governs`", rel.pos)
+        if rel.within is not None and not (is_time or name in ("precedes", "follows", "directly precedes",
+                                                                  "directly follows")):
+            self.fail(f"`within` does not apply to `{name}`", rel.within.pos,
+                      "use it with precedes/follows (distance) or a time relation (tolerance)")
+        if rel.within is not None:
+            w = rel.within
+            if not isinstance(w.value, (int, float)) or w.value < 0:
+                self.fail("`within` needs a number that is not negative", w.pos)
+            if is_time and w.unit not in (None, *TIME_UNITS):
+                self.fail(f"a time tolerance is in ms or s, not {w.unit}", w.pos)
+            if not is_time and w.unit in TIME_UNITS:
+                self.fail(f"a text distance is in words, tokens or chars, not {w.unit}", w.pos,
+                          "for time write e.g. `a before b in time`")
+        via = rel.via
+        if is_time:
+            for info in (la, lb):
+                if not info.time:
+                    self.fail(f"`{name}` compares time spans, but layer {info.name!r} has no time stamps", rel.pos)
+        elif name in TREE_RELATIONS:
+            if not (la.tree and lb.tree):
+                bad = la if not la.tree else lb
+                self.fail(f"`{name}` needs a tree; layer {bad.name!r} has none", rel.pos)
+            if la.name != lb.name:
+                self.fail(f"`{name}` relates nodes of the same tree, but {left.var} is {la.name!r} and "
+                          f"{right.var} is {lb.name!r}", rel.pos)
+        elif name in DEPENDENCY_RELATIONS:
+            via = self.edge_set(rel, la, lb)
+        elif name in COREF_RELATIONS:
+            self.coref_layer(la, rel.pos)
+            self.coref_layer(lb, rel.pos)
+        elif name in ("directly precedes", "directly follows"):
+            if _adjacency_layer(la, lb) is None:
+                self.fail(f"cannot tell adjacency between {la.name!r} and {lb.name!r}: they count no common "
+                          "token layer", rel.pos)
+        if rel.within is not None and rel.within.unit in ("words", "tokens") and not is_time:
+            if _ordinal_columns(la, rel.within.unit) is None or _ordinal_columns(lb, rel.within.unit) is None:
+                self.fail(f"layers {la.name!r} and {lb.name!r} are not counted in {rel.within.unit}", rel.within.pos)
+        return replace(rel, left=left, right=right, via=via, in_time=is_time)
+
+    def edge_set(self, rel: ast.Relation, la: LayerInfo, lb: LayerInfo) -> str:
+        edges = {n: l for n, l in self.all_layers.items() if l.kind == "edges"}
+        if rel.via is not None:
+            if rel.via not in edges:
+                self.fail(f"unknown edge set {rel.via!r}", rel.pos,
+                          suggest(rel.via, set(edges)) or ("edge sets: " + ", ".join(sorted(edges)) if edges else None))
+            return rel.via
+        offered = [e for e in la.edge_sets if e in lb.edge_sets] or list(la.edge_sets)
+        if "dep" in offered or ("dep" in edges and not offered):
+            return "dep"
+        if offered:
+            return offered[0]
+        self.fail(f"no dependency edges connect layer {la.name!r}", rel.pos,
+                  "edge sets: " + ", ".join(sorted(edges)) if edges else "this corpus has no edge sets")
+        raise AssertionError
+
+    # ---- outputs ---------------------------------------------------------------------
+    def item(self, item: ast.ShowItem, scope: dict[str, LayerInfo]) -> ast.ShowItem:
+        e = item.expr
+        if isinstance(e, ast.Path) and len(e.parts) == 1 and e.parts[0] in scope:
+            e = ast.Path((e.parts[0], "text"), e.pos)   # a bare variable shows its text
+        if isinstance(e, ast.Literal):
+            self.fail("show a value of a variable, e.g. v.form", e.pos)
+        return ast.ShowItem(self.expr(e, scope, None), item.label)
+
+    def output(self, out: ast.Output | None, scope: dict[str, LayerInfo]) -> ast.Output | None:
+        if out is None:
+            return None
+        if isinstance(out, ast.Show):
+            return ast.Show(tuple(self.item(i, scope) for i in out.items))
+        if isinstance(out, ast.Count):
+            return ast.Count(tuple(self.item(i, scope) for i in out.by))
+        if isinstance(out, ast.Aggregate):
+            expr = self.item(out.expr, scope)
+            if out.func in ("mean", "sum") and _type(expr.expr) not in NUMERIC:
+                self.fail(f"{out.func}() needs numbers, but {_written(expr.expr)} is {_type_name(expr.expr)}",
+                          getattr(expr.expr, "pos", None))
+            return ast.Aggregate(out.func, expr, tuple(self.item(i, scope) for i in out.by))
+        raise AssertionError
+
+    # ---- the whole query -----------------------------------------------------------------
+    def check(self, query: ast.Query) -> Checked:
+        scope = self.bind(query.bindings, {})
+        bindings = tuple(
+            replace(b, cond=self.cond(b.cond, scope, b.var) if b.cond is not None else None)
+            for b in query.bindings)
+        where = self.cond(query.where, scope, None) if query.where is not None else None
+        withouts: list[ast.Without] = []
+        inner_layers: list[dict[str, LayerInfo]] = []
+        for w in query.withouts:
+            own = self.bind(w.bindings, scope)
+            inner = {**scope, **own}
+            wb = tuple(replace(b, cond=self.cond(b.cond, inner, b.var) if b.cond is not None else None)
+                       for b in w.bindings)
+            wc = self.cond(w.cond, inner, None) if w.cond is not None else None
+            withouts.append(ast.Without(wb, wc))
+            inner_layers.append(own)
+        if query.qualifiers & {"same reading", "every reading"}:
+            if not any(l.readings for l in scope.values()):
+                pos = query.bindings[0].pos if query.bindings else None
+                self.fail("`in the same reading` / `in every reading` need a variable on a layer with "
+                          "alternative readings", pos)
+        if query.limit is not None and query.limit < 0:
+            self.fail("limit must not be negative", None)
+        checked = replace(query, bindings=bindings, where=where, withouts=tuple(withouts),
+                          output=self.output(query.output, scope))
+        if "cross product" not in query.qualifiers:
+            self.connected(checked, scope)
+        return Checked(checked, scope, tuple(inner_layers), self.catalog, self.text)
+
+    def connected(self, query: ast.Query, scope: dict[str, LayerInfo]) -> None:
+        """Refuse an accidental cross product: every variable must be related to the others."""
+        parent = {v: v for v in scope}
+
+        def find(v: str) -> str:
+            while parent[v] != v:
+                parent[v] = parent[parent[v]]
+                v = parent[v]
+            return v
+
+        def atoms(cond: ast.Cond | None):
+            if cond is None:
+                return
+            if isinstance(cond, (ast.And, ast.Or)):
+                for c in cond.items:
+                    yield from atoms(c)
+            elif isinstance(cond, ast.Not):
+                yield from atoms(cond.item)
+            else:
+                yield cond
+
+        for atom in atoms(query.where):
+            vs = sorted(ast.vars_in(atom) & set(scope))
+            for v in vs[1:]:
+                parent[find(v)] = find(vs[0])
+        if query.qualifiers & {"same reading", "every reading"}:
+            by_layer: dict[str, list[str]] = {}
+            for v, info in scope.items():
+                if info.readings:
+                    by_layer.setdefault(info.name, []).append(v)
+            for vs in by_layer.values():
+                for v in vs[1:]:
+                    parent[find(v)] = find(vs[0])
+        groups: dict[str, list[str]] = {}
+        for v in scope:
+            groups.setdefault(find(v), []).append(v)
+        if len(groups) > 1:
+            parts = list(groups.values())
+            a, b = parts[0][0], parts[1][0]
+            binding = next(bd for bd in query.bindings if bd.var == b)
+            self.fail(f"{a!r} and {b!r} are not related, so every pair of them would match (a cross product)",
+                      binding.pos, f"relate them, e.g. `where {b} inside {a}`, or add `allow cross product`")
+
+
+def _type(expr: ast.Expr) -> str:
+    if isinstance(expr, ast.Ref):
+        return expr.type
+    if isinstance(expr, ast.Func):
+        return "length" if expr.name == "distance" else "time"
+    if isinstance(expr, ast.Literal):
+        if isinstance(expr.value, bool):
+            return "bool"
+        if isinstance(expr.value, (int, float)):
+            return "time" if expr.unit in TIME_UNITS else "length" if expr.unit in LENGTH_UNITS else "literal_number"
+        return "str"
+    return "unknown"
+
+
+_TYPE_NAMES = {"str": "text", "int": "a whole number", "float": "a number", "bool": "true/false",
+               "time": "a time in seconds", "length": "a distance", "literal_number": "a number"}
+
+
+def _type_name(expr: ast.Expr) -> str:
+    return _TYPE_NAMES.get(_type(expr), _type(expr))
+
+
+def _written(expr: ast.Expr) -> str:
+    if isinstance(expr, ast.Ref):
+        return expr.written or f"{expr.var}.{expr.name}"
+    if isinstance(expr, ast.Func):
+        return f"{expr.name}({expr.a}, {expr.b})"
+    if isinstance(expr, ast.Literal):
+        return repr(expr.value)
+    return str(expr)
+
+
+def _ordinal_columns(layer: LayerInfo, unit: str) -> tuple[str, str] | None:
+    """Columns holding a node's first/last ordinal counted in words or tokens (None if not counted)."""
+    if unit == "words":
+        return ("word_first", "word_last") if layer.word_layer or layer.kind == "token" else None
+    return ("tok_first", "tok_last") if layer.token_layer or layer.kind == "token" else None
+
+
+def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
+    """The token layer in which "directly precedes" is decided (None if the layers share none)."""
+    def counted(layer: LayerInfo) -> set[str]:
+        out = {x for x in (layer.token_layer, layer.word_layer) if x}
+        if layer.kind == "token":
+            out.add(layer.name)
+        return out
+    if la.kind == "token" and la.name == lb.name:
+        return la.name
+    common = counted(la) & counted(lb)
+    for preferred in (la.token_layer, lb.token_layer, la.word_layer, lb.word_layer):
+        if preferred in common:
+            return preferred
+    return sorted(common)[0] if common else None
+
+
+def check(query: ast.Query, catalog: Catalog, text: str = "") -> Checked:
+    """Resolve and check every name and type in ``query``."""
+    return _Checker(catalog, text).check(query)

@@ -1,0 +1,482 @@
+"""Checked query + plan -> one DuckDB SQL statement with bound parameters.
+
+Safety: every value from the query text becomes a ``$n`` parameter; the only identifiers
+in the SQL are catalog names (layers, columns), double-quoted, and aliases the compiler
+generates itself.  Result columns get generated names (``c0``, ``c1``, ...) and are renamed
+after execution, so not even a variable name reaches the SQL text.
+
+Definitions the SQL implements (the user-facing semantics):
+
+* Spans are half-open ``[start, end)`` on the global character line.  ``a inside b``:
+  ``b.start <= a.start and a.end <= b.end``; a zero-width node at point p is therefore inside
+  every span with ``start <= p <= end`` (a pause right after the last word of a sentence is
+  inside that sentence).  ``overlaps`` means sharing at least one character, so a zero-width
+  node overlaps nothing.  A node is never inside, overlapping or the same span as itself.
+* ``a precedes b``: ``a.end <= b.start and a.start < b.end`` (two points at the same place
+  precede neither way).  ``within N words|tokens|chars`` bounds ``distance``.
+* ``distance(a, b)``: the number of words (``tokens``/``chars`` with that unit) strictly
+  between the two nodes; 0 when adjacent or overlapping.
+* ``directly precedes``: for two nodes of one token layer ``b.ord = a.ord + 1``; otherwise
+  ``a`` precedes ``b`` and no token of the shared token layer lies between them
+  (``b.first = a.last + 1`` in that layer's ordinals).
+* Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
+  the same document (each document has its own recording clock).  ``within T`` is a
+  tolerance: two end points are equal when they differ by at most T, and one is before the
+  other when it is more than T earlier.  ``gap(a, b) = b.t_start - a.t_end`` in seconds.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from querylang import ast
+from querylang.catalog import LayerInfo
+from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer
+from querylang.planner import Plan
+
+SENTENCE_VIEW = "sentence"
+DOC_VIEW = "doc"
+DOCUMENTS_VIEW = "documents"
+
+
+def ident(name: str) -> str:
+    """A double-quoted SQL identifier (names come from the catalog only)."""
+    return '"' + name.replace('"', '""') + '"'
+
+
+def ordinals(layer: LayerInfo, unit: str) -> tuple[str, str]:
+    """Columns of a node's first/last ordinal in words or tokens."""
+    ref = layer.word_layer if unit == "words" else layer.token_layer
+    if ref is None or ref == layer.name:
+        if layer.kind == "token":
+            return ("ord", "ord")
+    return ("word_first", "word_last") if unit == "words" else ("tok_first", "tok_last")
+
+
+def ordinals_in(layer: LayerInfo, token_layer: str) -> tuple[str, str]:
+    """Columns of a node's first/last ordinal counted in ``token_layer``."""
+    if layer.name == token_layer:
+        return ("ord", "ord")
+    if layer.token_layer == token_layer:
+        return ("tok_first", "tok_last")
+    return ("word_first", "word_last")
+
+
+@dataclass
+class Scope:
+    """The variables visible at one level (the main query or a without subquery)."""
+
+    aliases: dict[str, str]
+    layers: dict[str, LayerInfo]
+    own: list[str]                                   # variables this level puts in FROM
+    edge_joins: list[str] = field(default_factory=list)
+    edge_conds: list[str] = field(default_factory=list)
+
+
+class SqlBuilder:
+    def __init__(self, checked: Checked, plan: Plan) -> None:
+        self.checked = checked
+        self.plan = plan
+        self.params: list[object] = []
+        self.needs: dict[str, set[str]] = {}          # alias -> {"sentence", "doc", "text"}
+        self.alias_layer: dict[str, LayerInfo] = {}
+        self.n_edges = 0
+
+    # ---- parameters and names ---------------------------------------------------
+    def param(self, value: object) -> str:
+        self.params.append(value)
+        return f"${len(self.params)}"
+
+    def col(self, alias: str, name: str) -> str:
+        return f"{alias}.{ident(name)}"
+
+    def need(self, alias: str, what: str) -> None:
+        self.needs.setdefault(alias, set()).add(what)
+
+    # ---- values ---------------------------------------------------------------------
+    def literal(self, lit: ast.Literal) -> str:
+        value = lit.value
+        if lit.unit in TIME_UNITS and not isinstance(value, bool):
+            value = float(value) * TIME_UNITS[lit.unit]
+        return self.param(value)
+
+    def text_of(self, a: str) -> str:
+        self.need(a, "text")
+        t = f"{a}_t"
+        return (f"substr({t}.{ident('text')}, CAST({self.col(a, 'start')} - {t}.{ident('base')} + 1 AS BIGINT), "
+                f"CAST({self.col(a, 'end')} - {self.col(a, 'start')} AS BIGINT))")
+
+    def expr(self, e: ast.Expr, scope: Scope, unit: str | None = None) -> str:
+        if isinstance(e, ast.Literal):
+            return self.literal(e)
+        if isinstance(e, ast.Func):
+            a, b = scope.aliases[e.a], scope.aliases[e.b]
+            if e.name == "gap":   # times are per recording: no gap between documents
+                return (f"(CASE WHEN {self.col(a, 'doc')} = {self.col(b, 'doc')} "
+                        f"THEN {self.col(b, 't_start')} - {self.col(a, 't_end')} END)")
+            return self.distance(a, b, scope.layers[e.a], scope.layers[e.b], unit or "words")
+        assert isinstance(e, ast.Ref), e
+        a = scope.aliases[e.var]
+        if e.kind == "column":
+            return self.col(a, e.name)
+        if e.kind == "sentence":
+            self.need(a, "sentence")
+            return f"{a}_s.{ident(e.name)}"
+        if e.kind == "doc":
+            self.need(a, "doc")
+            return f"{a}_d.{ident(e.name)}"
+        if e.kind == "text":
+            return self.text_of(a)
+        if e.kind == "offset":
+            self.need(a, "text")
+            return f"({self.col(a, e.name[5:])} - {a}_t.{ident('base')})"
+        if e.kind == "time":
+            if e.name == "duration":
+                return f"({self.col(a, 't_end')} - {self.col(a, 't_start')})"
+            return self.col(a, "t_start" if e.name == "start" else "t_end")
+        raise AssertionError(e)
+
+    def distance(self, a: str, b: str, la: LayerInfo, lb: LayerInfo, unit: str) -> str:
+        if unit == "chars":
+            return (f"greatest(0, {self.col(b, 'start')} - {self.col(a, 'end')}, "
+                    f"{self.col(a, 'start')} - {self.col(b, 'end')})")
+        fa, la_ = ordinals(la, unit)
+        fb, lb_ = ordinals(lb, unit)
+        return (f"greatest(0, {self.col(b, fb)} - {self.col(a, la_)} - 1, "
+                f"{self.col(a, fa)} - {self.col(b, lb_)} - 1)")
+
+    # ---- conditions ----------------------------------------------------------------------
+    def cond(self, c: ast.Cond, scope: Scope, top: bool = False) -> str:
+        if isinstance(c, ast.And):
+            return "(" + " AND ".join(self.cond(i, scope, top) for i in c.items) + ")"
+        if isinstance(c, ast.Or):
+            return "(" + " OR ".join(self.cond(i, scope) for i in c.items) + ")"
+        if isinstance(c, ast.Not):
+            return f"(NOT coalesce({self.cond(c.item, scope)}, false))"
+        if isinstance(c, ast.Compare):
+            unit = _unit_of(c.left) or _unit_of(c.right)
+            op = "<>" if c.op == "!=" else c.op
+            return f"({self.expr(c.left, scope, unit)} {op} {self.expr(c.right, scope, unit)})"
+        if isinstance(c, ast.InList):
+            e = self.expr(c.expr, scope)
+            values = ", ".join(self.literal(v) for v in c.values)
+            return f"({e} {'NOT IN' if c.negated else 'IN'} ({values}))"
+        if isinstance(c, ast.Matches):
+            return f"regexp_matches({self.expr(c.expr, scope)}, {self.literal(c.pattern)})"
+        if isinstance(c, ast.Missing):
+            return f"({self.expr(c.expr, scope)} IS {'NOT ' if c.negated else ''}NULL)"
+        if isinstance(c, ast.FirstMention):
+            assert isinstance(c.subject, ast.Ref)
+            a = scope.aliases[c.subject.var]
+            info = scope.layers[c.subject.var].attrs["first_mention"]
+            column = self.col(a, "first_mention")
+            if info.type == "bool":
+                return f"coalesce({column}, false)"
+            if info.type in ("int", "float"):
+                return f"({column} = 1)"
+            return f"(lower({column}) IN ({self.param('true')}, {self.param('1')}, {self.param('yes')}))"
+        if isinstance(c, ast.Relation):
+            return self.relation(c, scope, top)
+        raise AssertionError(c)
+
+    def relation(self, r: ast.Relation, scope: Scope, top: bool) -> str:
+        assert isinstance(r.left, ast.Ref) and isinstance(r.right, ast.Ref)
+        name = r.name
+        a, b = scope.aliases[r.left.var], scope.aliases[r.right.var]
+        la, lb = scope.layers[r.left.var], scope.layers[r.right.var]
+        if name in ("contains", "follows", "directly follows", "parent of", "above", "governs") and not r.in_time:
+            inverse = {"contains": "inside", "follows": "precedes", "directly follows": "directly precedes",
+                       "parent of": "child of", "above": "under", "governs": "depends on"}[name]
+            return self.relation(ast.Relation(inverse, r.right, r.left, r.within, r.depth, r.label, r.via,
+                                              False, r.pos), scope, top)
+        c = self.col
+        different = f"{c(a, 'id')} <> {c(b, 'id')}"
+        if r.in_time:
+            return self.allen(name, a, b, r.within)
+        if name == "inside":
+            return f"({c(b, 'start')} <= {c(a, 'start')} AND {c(a, 'end')} <= {c(b, 'end')} AND {different})"
+        if name == "overlaps":
+            return f"({c(a, 'start')} < {c(b, 'end')} AND {c(b, 'start')} < {c(a, 'end')} AND {different})"
+        if name == "same span as":
+            return f"({c(a, 'start')} = {c(b, 'start')} AND {c(a, 'end')} = {c(b, 'end')} AND {different})"
+        if name == "precedes":
+            out = f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')}"
+            if r.within is not None:
+                unit = r.within.unit or "words"
+                out += f" AND {self.distance(a, b, la, lb, unit)} <= {self.param(r.within.value)}"
+            return out + ")"
+        if name == "directly precedes":
+            ref = _adjacency_layer(la, lb)
+            assert ref is not None
+            if la.name == lb.name == ref:
+                return f"({c(b, 'ord')} = {c(a, 'ord')} + 1)"
+            _, last_a = ordinals_in(la, ref)
+            first_b, _ = ordinals_in(lb, ref)
+            return (f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')} AND "
+                    f"{c(b, first_b)} = {c(a, last_a)} + 1)")
+        if name == "child of":
+            return f"({c(a, 'parent')} = {c(b, 'id')})"
+        if name == "sibling of":
+            return f"({c(a, 'parent')} = {c(b, 'parent')} AND {different})"
+        if name == "under":
+            out = f"({c(b, 'pre')} < {c(a, 'pre')} AND {c(a, 'post')} < {c(b, 'post')}"
+            if r.depth is not None:
+                out += (f" AND {c(a, 'depth')} - {c(b, 'depth')} BETWEEN {self.param(r.depth[0])} "
+                        f"AND {self.param(r.depth[1])}")
+            return out + ")"
+        if name == "depends on":
+            return self.dependency(r, a, b, scope, top)
+        if name == "same entity as":
+            return f"({c(a, 'chain')} = {c(b, 'chain')} AND {different})"
+        if name == "antecedent of":
+            return f"({c(a, 'chain')} = {c(b, 'chain')} AND {c(a, 'chain_pos')} < {c(b, 'chain_pos')})"
+        if name == "previous mention of":
+            return f"({c(a, 'chain')} = {c(b, 'chain')} AND {c(a, 'chain_pos')} = {c(b, 'chain_pos')} - 1)"
+        raise AssertionError(name)
+
+    def dependency(self, r: ast.Relation, a: str, b: str, scope: Scope, top: bool) -> str:
+        edges = ident(r.via or "dep")
+        label = f" WHERE {ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
+        if top:
+            e = f"e{self.n_edges}"
+            self.n_edges += 1
+            scope.edge_joins.append(f"(SELECT DISTINCT {ident('src')}, {ident('dst')} FROM {edges}{label}) AS {e}")
+            return f"({e}.{ident('src')} = {self.col(a, 'id')} AND {e}.{ident('dst')} = {self.col(b, 'id')})"
+        cond = f" AND x.{ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
+        return (f"EXISTS (SELECT 1 FROM {edges} AS x WHERE x.{ident('src')} = {self.col(a, 'id')} "
+                f"AND x.{ident('dst')} = {self.col(b, 'id')}{cond})")
+
+    def allen(self, name: str, a: str, b: str, within: ast.Literal | None) -> str:
+        tol = self.literal(within) if within is not None and within.value != 0 else None
+        s = {a: self.col(a, "t_start"), b: self.col(b, "t_start")}
+        e = {a: self.col(a, "t_end"), b: self.col(b, "t_end")}
+
+        def eq(x: str, y: str) -> str:
+            return f"abs({x} - {y}) <= {tol}" if tol else f"{x} = {y}"
+
+        def lt(x: str, y: str) -> str:
+            return f"{x} < {y} - {tol}" if tol else f"{x} < {y}"
+
+        forms = {
+            "before": [lt(e[a], s[b])],
+            "after": [lt(e[b], s[a])],
+            "meets": [eq(e[a], s[b])],
+            "met by": [eq(e[b], s[a])],
+            "overlaps": [lt(s[a], s[b]), lt(s[b], e[a]), lt(e[a], e[b])],
+            "overlapped by": [lt(s[b], s[a]), lt(s[a], e[b]), lt(e[b], e[a])],
+            "starts": [eq(s[a], s[b]), lt(e[a], e[b])],
+            "started by": [eq(s[a], s[b]), lt(e[b], e[a])],
+            "during": [lt(s[b], s[a]), lt(e[a], e[b])],
+            "contains": [lt(s[a], s[b]), lt(e[b], e[a])],
+            "finishes": [eq(e[a], e[b]), lt(s[b], s[a])],
+            "finished by": [eq(e[a], e[b]), lt(s[a], s[b])],
+            "equals": [eq(s[a], s[b]), eq(e[a], e[b]), f"{self.col(a, 'id')} <> {self.col(b, 'id')}"],
+        }
+        same_recording = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
+        return "(" + " AND ".join([same_recording] + forms[name]) + ")"
+
+    # ---- FROM and WHERE of one level ---------------------------------------------------------
+    def level(self, bindings: tuple[ast.Binding, ...], cond: ast.Cond | None, scope: Scope) -> tuple[str, str]:
+        """FROM list and WHERE text for the bindings of one level."""
+        wheres: list[str] = []
+        for b in bindings:
+            if b.cond is not None:
+                wheres.append(self.cond(b.cond, scope, top=True))
+        for atom in ast.conjuncts(cond):
+            wheres.append(self.cond(atom, scope, top=True))
+        items = [self.from_item(v, scope) for v in scope.own] + scope.edge_joins
+        return ", ".join(items), " AND ".join(wheres) if wheres else "true"
+
+    def from_item(self, var: str, scope: Scope) -> str:
+        a = scope.aliases[var]
+        out = f"{ident(scope.layers[var].name)} AS {a}"
+        self.alias_layer[a] = scope.layers[var]
+        needs = self.needs.get(a, set())
+        if "sentence" in needs:
+            out += f" LEFT JOIN {ident(SENTENCE_VIEW)} AS {a}_s ON {a}_s.{ident('id')} = {self.col(a, 'sent')}"
+        if "doc" in needs:
+            out += f" LEFT JOIN {ident(DOC_VIEW)} AS {a}_d ON {a}_d.{ident('doc')} = {self.col(a, 'doc')}"
+        if "text" in needs:
+            out += f" LEFT JOIN {ident(DOCUMENTS_VIEW)} AS {a}_t ON {a}_t.{ident('doc')} = {self.col(a, 'doc')}"
+        return out
+
+
+def _unit_of(e: ast.Expr) -> str | None:
+    return e.unit if isinstance(e, ast.Literal) and e.unit in LENGTH_UNITS else None
+
+
+@dataclass(frozen=True)
+class SqlQuery:
+    sql: str
+    params: list[object]
+    columns: list[str]          # result column names, in order (renaming c0, c1, ...)
+    kind: str                   # "hits" or "aggregate"
+
+
+def _reading_groups(checked: Checked) -> dict[str, list[str]]:
+    groups: dict[str, list[str]] = {}
+    for v, info in checked.layers.items():
+        if info.readings:
+            groups.setdefault(info.name, []).append(v)
+    return groups
+
+
+def kwic_layer(checked: Checked) -> LayerInfo | None:
+    """The layer whose words make up the keyword-in-context columns."""
+    layers = checked.catalog.layers()
+    first = next(iter(checked.layers.values()))
+    for name in (first.word_layer, first.token_layer, first.name if first.kind == "token" else None, "word"):
+        if name and name in layers and layers[name].kind == "token":
+            return layers[name]
+    return None
+
+
+def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: int = 5) -> SqlQuery:
+    """The whole statement: matches (m), reading filter (k), output with KWIC."""
+    q = checked.query
+    sb = SqlBuilder(checked, plan)
+    main = Scope(dict(plan.aliases), dict(checked.layers), list(plan.order))
+    wheres: list[str] = []
+
+    # without clauses become NOT EXISTS subqueries
+    for i, (w, own) in enumerate(zip(q.withouts, checked.inner_layers)):
+        aliases = {**main.aliases, **{v: f"w{i}_{j}" for j, v in enumerate(own)}}
+        sub = Scope(aliases, {**main.layers, **own}, list(own))
+        frm, whr = sb.level(w.bindings, w.cond, sub)
+        wheres.append(f"NOT EXISTS (SELECT 1 FROM {frm} WHERE {whr})")
+
+    if q.qualifiers & {"same reading", "every reading"}:
+        for vs in _reading_groups(checked).values():
+            a0 = main.aliases[vs[0]]
+            for v in vs[1:]:
+                a = main.aliases[v]
+                wheres.append(f"({sb.col(a, 'sent')} = {sb.col(a0, 'sent')} AND "
+                              f"{sb.col(a, 'reading')} = {sb.col(a0, 'reading')})")
+
+    # select list of the match level
+    select: list[str] = []
+    variables = [b.var for b in q.bindings]
+    for i, v in enumerate(variables):
+        a = main.aliases[v]
+        select += [f"{sb.col(a, 'id')} AS _id{i}", f"{sb.col(a, 'doc')} AS _doc{i}",
+                   f"{sb.col(a, 'start')} AS _start{i}", f"{sb.col(a, 'end')} AS _end{i}",
+                   f"{sb.col(a, 'sent')} AS _sent{i}"]
+        if checked.layers[v].readings:
+            select.append(f"{sb.col(a, 'reading')} AS _read{i}")
+    out = q.output
+    items: list[ast.ShowItem] = []
+    if isinstance(out, ast.Show):
+        items = list(out.items)
+    elif isinstance(out, ast.Count):
+        items = list(out.by)
+    elif isinstance(out, ast.Aggregate):
+        items = list(out.by) + [out.expr]
+    for k, item in enumerate(items):
+        select.append(f"{sb.expr(item.expr, main)} AS _x{k}")
+    starts = [f"{sb.col(main.aliases[v], 'start')}" for v in variables]
+    ends = [f"{sb.col(main.aliases[v], 'end')}" for v in variables]
+    select.append(f"least({', '.join(starts)}) AS _hs" if len(starts) > 1 else f"{starts[0]} AS _hs")
+    select.append(f"greatest({', '.join(ends)}) AS _he" if len(ends) > 1 else f"{ends[0]} AS _he")
+
+    frm, whr = sb.level(q.bindings, q.where, main)
+    if wheres:
+        whr = " AND ".join([whr] + wheres)
+    ctes = [f"m AS (SELECT {', '.join(select)} FROM {frm} WHERE {whr})"]
+
+    # in every reading: keep groups whose matched readings are all the sentence's readings
+    last = "m"
+    if "every reading" in q.qualifiers:
+        for n, (layer_name, vs) in enumerate(_reading_groups(checked).items()):
+            i0 = variables.index(vs[0])
+            keys = [f"_id{i}" for i, v in enumerate(variables) if v not in vs] + [f"_sent{i0}"]
+            key_list = ", ".join(keys)
+            ctes.append(f"g{n} AS (SELECT {key_list}, count(DISTINCT _read{i0}) AS n FROM {last} GROUP BY {key_list})")
+            ctes.append(f"r{n} AS (SELECT {ident('sent')} AS s, count(DISTINCT {ident('reading')}) AS n "
+                        f"FROM {ident(layer_name)} GROUP BY {ident('sent')})")
+            on = " AND ".join(f"g{n}.{k} IS NOT DISTINCT FROM {last}.{k}" for k in keys)
+            ctes.append(f"k{n} AS (SELECT {last}.* FROM {last} JOIN g{n} ON {on} JOIN r{n} "
+                        f"ON r{n}.s = {last}._sent{i0} WHERE g{n}.n = r{n}.n)")
+            last = f"k{n}"
+
+    eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
+    limit_sql = f" LIMIT {sb.param(int(eff_limit))}" if eff_limit is not None else ""
+    order = ", ".join(["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])
+
+    if isinstance(out, (ast.Count, ast.Aggregate)):
+        by = out.by
+        keys = [f"_x{k}" for k in range(len(by))]
+        cols = [f"{key} AS c{k}" for k, key in enumerate(keys)]
+        names = [i.label for i in by]
+        if isinstance(out, ast.Aggregate):
+            fn = {"mean": "avg", "min": "min", "max": "max", "sum": "sum"}[out.func]
+            cols.append(f"{fn}(_x{len(by)}) AS c{len(cols)}")
+            names.append(out.expr.label)
+        cols.append(f"count(*) AS c{len(cols)}")
+        names.append("count")
+        group = f" GROUP BY {', '.join(keys)}" if keys else ""
+        if isinstance(out, ast.Count) and keys:
+            order_by = " ORDER BY count(*) DESC, " + ", ".join(f"{k} ASC NULLS LAST" for k in keys)
+        elif keys:
+            order_by = " ORDER BY " + ", ".join(f"{k} ASC NULLS LAST" for k in keys)
+        else:
+            order_by = ""
+        sql = f"WITH {', '.join(ctes)} SELECT {', '.join(cols)} FROM {last}{group}{order_by}{limit_sql}"
+        return SqlQuery(sql, sb.params, names, "aggregate")
+
+    ctes.append(f"l AS (SELECT * FROM {last} ORDER BY {order}{limit_sql})")
+    cols: list[str] = []
+    names: list[str] = []
+    joins: list[str] = []
+    d = ident("documents")
+    joins.append(f"LEFT JOIN {d} AS t0 ON t0.{ident('doc')} = l._doc0")
+    cols.append(f"t0.{ident('name')}")
+    names.append("doc")
+    sentence = checked.catalog.layers().get(SENTENCE_VIEW)
+    if sentence is not None and "sent_id" in sentence.attrs:
+        joins.append(f"LEFT JOIN {ident(SENTENCE_VIEW)} AS st ON st.{ident('id')} = l._sent0")
+        cols.append(f"st.{ident('sent_id')}")
+    else:
+        cols.append("l._sent0")
+    names.append("sentence")
+    for i, v in enumerate(variables):
+        t = f"t{i}"
+        if i > 0:
+            joins.append(f"LEFT JOIN {d} AS {t} ON {t}.{ident('doc')} = l._doc{i}")
+        base = f"{t}.{ident('base')}"
+        cols += [f"l._id{i}",
+                 f"substr({t}.{ident('text')}, CAST(l._start{i} - {base} + 1 AS BIGINT), "
+                 f"CAST(l._end{i} - l._start{i} AS BIGINT))",
+                 f"l._start{i} - {base}", f"l._end{i} - {base}"]
+        names += [f"{v}.id", f"{v}.text", f"{v}.char_start", f"{v}.char_end"]
+        if checked.layers[v].readings:
+            cols.append(f"l._read{i}")
+            names.append(f"{v}.reading")
+    for k, item in enumerate(items):
+        if item.label in names:          # e.g. "show a.text": already a column of the hit table
+            continue
+        cols.append(f"l._x{k}")
+        names.append(item.label)
+    # keyword in context: N words before the first and after the last character of the hit
+    text0, base0, len0 = f"t0.{ident('text')}", f"t0.{ident('base')}", f"t0.{ident('length')}"
+    words = kwic_layer(checked)
+    if words is not None and context > 0:
+        w = ident(words.name)
+        n = sb.param(int(context) - 1)
+        dcol, ocol, scol, ecol, icol = (ident(x) for x in ("doc", "ord", "start", "end", "id"))
+        joins += [
+            f"ASOF LEFT JOIN {w} AS wl ON wl.{dcol} = l._doc0 AND l._hs >= wl.{ecol}",
+            f"LEFT JOIN {w} AS wl2 ON wl2.{dcol} = l._doc0 AND wl2.{ocol} = wl.{ocol} - {n}",
+            f"ASOF LEFT JOIN {w} AS wr ON wr.{dcol} = l._doc0 AND l._he <= wr.{scol}",
+            f"LEFT JOIN {w} AS wr2 ON wr2.{dcol} = l._doc0 AND wr2.{ocol} = wr.{ocol} + {n}",
+        ]
+        left_start = f"(CASE WHEN wl.{icol} IS NULL THEN l._hs ELSE coalesce(wl2.{scol}, {base0}) END)"
+        right_end = f"(CASE WHEN wr.{icol} IS NULL THEN l._he ELSE coalesce(wr2.{ecol}, {base0} + {len0}) END)"
+    else:
+        left_start, right_end = "l._hs", "l._he"
+    cols += [f"substr({text0}, CAST({left_start} - {base0} + 1 AS BIGINT), CAST(l._hs - {left_start} AS BIGINT))",
+             f"substr({text0}, CAST(l._hs - {base0} + 1 AS BIGINT), CAST(l._he - l._hs AS BIGINT))",
+             f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST({right_end} - l._he AS BIGINT))"]
+    names += ["left", "match", "right"]
+    select_out = ", ".join(f"{c} AS c{k}" for k, c in enumerate(cols))
+    sql = (f"WITH {', '.join(ctes)} SELECT {select_out} FROM l {' '.join(joins)} "
+           f"ORDER BY {', '.join('l.' + x for x in order.split(', '))}")
+    return SqlQuery(sql, sb.params, names, "hits")

@@ -1,0 +1,317 @@
+"""Query text -> AST (querylang.ast), with syntax errors that point at the place.
+
+The grammar lives in ``grammar.lark``; a lark Transformer builds the frozen dataclasses.
+Every lark error becomes a :class:`engine.errors.StrataError` carrying the query, line
+and column so the command line can draw a caret; no lark exception escapes.
+"""
+from __future__ import annotations
+
+from functools import lru_cache
+from pathlib import Path as FilePath
+
+from lark import Lark, Token, Transformer, v_args
+from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken, VisitError
+
+from engine.errors import StrataError
+from querylang import ast
+
+GRAMMAR_FILE = FilePath(__file__).with_name("grammar.lark")
+
+# How the terminals are named in "expected one of ..." messages.
+TERMINAL_NAMES = {
+    "NAME": "a name",
+    "STRING": 'a quoted string ("...")',
+    "NUMBER": "a number",
+    "INT": "a whole number",
+    "RELATION": "a relation (inside, precedes, child of, ...)",
+    "COMPARE": "a comparison (=, !=, <, <=, >, >=)",
+    "MATCHES": "matches",
+    "NOT_IN": "not in",
+    "IS_MISSING": "is missing",
+    "IS_NOT_MISSING": "is not missing",
+    "IS_FIRST_MENTION": "is first mention",
+    "FIRST_MENTION": "first mention",
+    "SAME_READING": "in the same reading",
+    "EVERY_READING": "in every reading",
+    "CROSS_PRODUCT": "allow cross product",
+    "IN_TIME": "in time",
+    "AT_DEPTH": "at depth",
+    "AGGREGATE": "mean/min/max/sum",
+    "FUNCTION": "distance/gap",
+    "UNIT": "a unit (ms, s, words, tokens, chars)",
+    "$END": "the end of the query",
+}
+
+ESCAPES = {"n": "\n", "t": "\t", "\\": "\\", '"': '"'}
+
+
+@lru_cache(maxsize=1)
+def _lark() -> Lark:
+    return Lark(
+        GRAMMAR_FILE.read_text(encoding="utf-8"),
+        parser="lalr",
+        lexer="contextual",
+        propagate_positions=True,
+        maybe_placeholders=False,
+    )
+
+
+def _pos(item: object) -> ast.Pos:
+    line = getattr(item, "line", None)
+    column = getattr(item, "column", None)
+    if line is None:
+        meta = getattr(item, "meta", None)
+        line = getattr(meta, "line", 1) if meta is not None and not getattr(meta, "empty", True) else 1
+        column = getattr(meta, "column", 1) if meta is not None and not getattr(meta, "empty", True) else 1
+    return ast.Pos(int(line or 1), int(column or 1))
+
+
+def unquote(token: str) -> str:
+    """Decode a double-quoted literal: \\" \\\\ \\n \\t; any other escaped char stands for itself."""
+    body = token[1:-1]
+    out: list[str] = []
+    i = 0
+    while i < len(body):
+        ch = body[i]
+        if ch == "\\" and i + 1 < len(body):
+            out.append(ESCAPES.get(body[i + 1], body[i + 1]))
+            i += 2
+        else:
+            out.append(ch)
+            i += 1
+    return "".join(out)
+
+
+def _number(text: str) -> int | float:
+    return float(text) if "." in text else int(text)
+
+
+def _unit(text: str) -> str:
+    """Normalise unit spellings: word -> words, token -> tokens, char -> chars."""
+    return {"word": "words", "token": "tokens", "char": "chars"}.get(text, text)
+
+
+@v_args(inline=True)
+class ToAst(Transformer):
+    """Builds querylang.ast nodes from the lark tree."""
+
+    def start(self, query):
+        return query
+
+    def query(self, *clauses):
+        bindings: tuple[ast.Binding, ...] = ()
+        where = None
+        withouts: list[ast.Without] = []
+        qualifiers: set[str] = set()
+        output = None
+        limit = None
+        for clause in clauses:
+            kind, value = clause
+            if kind == "find":
+                bindings = value
+            elif kind == "where":
+                where = value
+            elif kind == "without":
+                withouts.append(value)
+            elif kind == "qualifier":
+                qualifiers.add(value)
+            elif kind == "output":
+                output = value
+            elif kind == "limit":
+                limit = value
+        return ast.Query(bindings, where, tuple(withouts), frozenset(qualifiers), output, limit)
+
+    def find_clause(self, *bindings):
+        return ("find", tuple(bindings))
+
+    def binding(self, name, layer, *conds):
+        conds = tuple(c for c in conds if c is not None)
+        cond = None if not conds else conds[0] if len(conds) == 1 else ast.And(conds)
+        return ast.Binding(str(name), layer, cond, _pos(name))
+
+    def layer_name(self, *parts):
+        return ".".join(str(p) for p in parts)
+
+    def where_clause(self, cond):
+        return ("where", cond)
+
+    def without_clause(self, *items):
+        bindings = tuple(i for i in items if isinstance(i, ast.Binding))
+        conds = [i for i in items if not isinstance(i, ast.Binding)]
+        return ("without", ast.Without(bindings, conds[0] if conds else None))
+
+    def qualifier(self, token):
+        text = " ".join(str(token).split())
+        return ("qualifier", {"in the same reading": "same reading",
+                              "in every reading": "every reading",
+                              "allow cross product": "cross product"}[text])
+
+    def show(self, *items):
+        return ("output", ast.Show(tuple(items)))
+
+    def count(self, by=()):
+        return ("output", ast.Count(tuple(by)))
+
+    def aggregate(self, func, expr, by=()):
+        name = str(func)
+        item = ast.ShowItem(expr, f"{name}({_label(expr)})")
+        return ("output", ast.Aggregate(name, item, tuple(by)))
+
+    def show_item(self, expr, label=None):
+        return ast.ShowItem(expr, str(label) if label is not None else _label(expr))
+
+    def by_clause(self, *exprs):
+        return tuple(ast.ShowItem(e, _label(e)) for e in exprs)
+
+    def limit_clause(self, n):
+        return ("limit", int(n))
+
+    # conditions
+    def or_(self, a, b):
+        items = (a.items if isinstance(a, ast.Or) else (a,)) + (b.items if isinstance(b, ast.Or) else (b,))
+        return ast.Or(items)
+
+    def and_(self, a, b):
+        items = (a.items if isinstance(a, ast.And) else (a,)) + (b.items if isinstance(b, ast.And) else (b,))
+        return ast.And(items)
+
+    def not_(self, item):
+        return ast.Not(item)
+
+    def compare(self, left, op, right):
+        return ast.Compare(str(op), left, right, _pos(op))
+
+    def in_list(self, expr, values):
+        return ast.InList(expr, values, False, _expr_pos(expr))
+
+    def not_in_list(self, expr, token, values):
+        return ast.InList(expr, values, True, _pos(token))
+
+    def matches(self, expr, token, pattern):
+        return ast.Matches(expr, ast.Literal(unquote(str(pattern)), None, _pos(pattern)), _pos(token))
+
+    def missing(self, expr, token):
+        return ast.Missing(expr, False, _pos(token))
+
+    def present(self, expr, token):
+        return ast.Missing(expr, True, _pos(token))
+
+    def first_mention(self, expr, token):
+        return ast.FirstMention(expr, _pos(token))
+
+    def bare_first_mention(self, token):
+        return ast.FirstMention(None, _pos(token))
+
+    def relation(self, left, name, right, *mods):
+        fields: dict[str, object] = {}
+        for key, value in mods:
+            fields[key] = value
+        return ast.Relation(" ".join(str(name).split()), left, right, pos=_pos(name), **fields)
+
+    def within(self, quantity):
+        return ("within", quantity)
+
+    def at_depth(self, token, lo, hi=None):
+        return ("depth", (int(lo), int(hi if hi is not None else lo)))
+
+    def label(self, string):
+        return ("label", ast.Literal(unquote(str(string)), None, _pos(string)))
+
+    def via(self, name):
+        return ("via", name)
+
+    def in_time(self, token):
+        return ("in_time", True)
+
+    def list(self, *values):
+        return tuple(v for v in values if v is not None)
+
+    def func(self, name, a, b):
+        return ast.Func(str(name), str(a), str(b), _pos(name))
+
+    def path(self, *parts):
+        return ast.Path(tuple(str(p) for p in parts), _pos(parts[0]))
+
+    def string(self, token):
+        return ast.Literal(unquote(str(token)), None, _pos(token))
+
+    def quantity(self, number, unit=None):
+        return ast.Literal(_number(str(number)), _unit(str(unit)) if unit is not None else None, _pos(number))
+
+    def true(self):
+        return ast.Literal(True)
+
+    def false(self):
+        return ast.Literal(False)
+
+
+def _expr_pos(expr: object) -> ast.Pos:
+    return getattr(expr, "pos", ast.NOWHERE)
+
+
+def _label(expr: object) -> str:
+    """The column name an expression gets in the result table (its written form)."""
+    if isinstance(expr, ast.Path):
+        return expr.text
+    if isinstance(expr, ast.Func):
+        return f"{expr.name}({expr.a}, {expr.b})"
+    if isinstance(expr, ast.Literal):
+        return str(expr.value) + (expr.unit or "")
+    return str(expr)
+
+
+def _expected(names: set[str] | frozenset[str]) -> str:
+    shown: list[str] = []
+    for name in sorted(names):
+        if name in TERMINAL_NAMES:
+            shown.append(TERMINAL_NAMES[name])
+            continue
+        term = next((t for t in _lark().terminals if t.name == name), None)
+        if term is not None and term.pattern.type == "str":
+            shown.append(f'"{term.pattern.value}"')
+        else:
+            shown.append(name.lower())
+    return ", ".join(dict.fromkeys(shown))
+
+
+def parse(text: str) -> ast.Query:
+    """Parse query text; raise StrataError with line/column on any syntax error."""
+    if not text.strip():
+        raise StrataError("empty query: write e.g. find w = word(form = \"ferry\")", query=text or " ", line=1, column=1)
+    try:
+        tree = _lark().parse(text)
+    except UnexpectedToken as err:
+        found = "the end of the query" if err.token.type == "$END" else repr(str(err.token))
+        raise StrataError(
+            f"unexpected {found}; expected one of: {_expected(err.expected)}",
+            query=text,
+            line=_last_line(text) if err.token.type == "$END" or not err.line or err.line < 1 else err.line,
+            column=_last_column(text) if err.token.type == "$END" or not err.column or err.column < 1 else err.column,
+        ) from None
+    except UnexpectedCharacters as err:
+        allowed = _expected(err.allowed) if err.allowed else "something else"
+        raise StrataError(
+            f"unexpected character {text[err.pos_in_stream]!r}; expected one of: {allowed}",
+            query=text, line=err.line, column=err.column,
+        ) from None
+    except UnexpectedEOF as err:
+        raise StrataError(
+            f"the query ends too early; expected one of: {_expected(set(err.expected))}",
+            query=text, line=_last_line(text), column=_last_column(text),
+        ) from None
+    except UnexpectedInput as err:  # any other lark input error
+        raise StrataError(f"syntax error: {err}", query=text, line=getattr(err, "line", 1),
+                          column=getattr(err, "column", 1)) from None
+    try:
+        return ToAst().transform(tree)
+    except VisitError as err:
+        raise StrataError(f"cannot read the query: {err.orig_exc}", query=text, line=1, column=1) from None
+
+
+def _last_line(text: str) -> int:
+    return max(len(text.splitlines()), 1)
+
+
+def _last_column(text: str) -> int:
+    lines = text.splitlines() or [""]
+    return len(lines[-1]) + 1
