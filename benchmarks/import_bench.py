@@ -29,6 +29,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from benchmarks.synth import token_count_arg
+
 GOAL_RATIO = 3.0
 DEFAULT_DATA = Path(__file__).resolve().parents[1].parent / "shared" / "data" / "ud-english-gum"
 COPY_SUFFIX = "__copy{}"
@@ -188,23 +190,13 @@ def table(r: dict) -> str:
     return "\n".join(lines)
 
 
-def _count(text: str) -> int:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number of tokens: {text!r}") from None
-    if not (1 <= value <= 1e9) or value != int(value):
-        raise argparse.ArgumentTypeError(f"tokens must be a whole number from 1 to 1e9: {text!r}")
-    return int(value)
-
-
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     if argv[:1] == ["--child"]:
         _child(*argv[1:4])
         return 0
     ap = argparse.ArgumentParser(prog="python -m benchmarks.import_bench", description=__doc__.split("\n\n")[0])
-    ap.add_argument("--tokens", type=_count, default=1_000_000, help="at least this many tokens (default 1e6)")
+    ap.add_argument("--tokens", type=token_count_arg, default=1_000_000, help="at least this many tokens (default 1e6)")
     ap.add_argument("--repeat", type=int, default=1, help="runs of each side; the best counts")
     ap.add_argument("--data", type=Path, default=DEFAULT_DATA, help="folder with the treebank's .conllu files")
     ap.add_argument("--keep", type=Path, default=None, help="keep the replicated input and stores here")

@@ -797,7 +797,8 @@ def generate(tokens: int, out: Path, seed: int = 1, workers: int | None = None) 
     return summary
 
 
-def _count(text: str) -> int:
+def token_count_arg(text: str) -> int:
+    """argparse type for a token count: a whole number, written out or as 1e6."""
     try:
         value = float(text)
     except ValueError:
@@ -809,7 +810,7 @@ def _count(text: str) -> int:
 
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(prog="python -m benchmarks.synth", description=__doc__.split("\n\n")[0])
-    ap.add_argument("--tokens", type=_count, required=True, help="syntactic words, e.g. 1e6")
+    ap.add_argument("--tokens", type=token_count_arg, required=True, help="syntactic words, e.g. 1e6")
     ap.add_argument("--out", type=Path, required=True, help="output directory")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--workers", type=int, default=None, help="processes (default: CPU count)")
