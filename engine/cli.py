@@ -180,6 +180,18 @@ def explain(
     out.print(_escape(_open(corpus).explain(_query_text(text, file))), soft_wrap=True)
 
 
+@app.command("align-report")
+@user_errors
+def align_report(
+    corpus: Path = typer.Argument(..., help="the corpus folder"),
+    layer: Optional[str] = typer.Option(None, "--layer", help="only this layer"),
+) -> None:
+    """How each aligned layer's leaves landed on the text: counts per class, worst cases."""
+    from engine.align.report import align_report as report
+    for rep in report(_open(corpus).store, layer):
+        out.print(_escape(rep.text()), soft_wrap=True)
+
+
 @app.command()
 @user_errors
 def demo(

@@ -1,0 +1,71 @@
+"""Normal forms for comparing a leaf with the primary text, character by character.
+
+Tools write the same words differently: case, typographic quotes and dashes,
+escaped brackets (``-LRB-``), ellipses. Both sides are mapped to one normal form
+before the character alignment; whitespace is dropped so that a contraction
+written whole ("don't") and split ("do" + "n't") become the same characters.
+"""
+from __future__ import annotations
+
+import re
+import unicodedata
+from functools import lru_cache
+
+import numpy as np
+
+#: Treebank escapes for characters that would clash with the bracket syntax
+#: (the Penn Treebank convention: -LRB- for "(", -RRB- for ")", and so on).
+BRACKET_ESCAPES = {"-LRB-": "(", "-RRB-": ")", "-LCB-": "{", "-RCB-": "}", "-LSB-": "[", "-RSB-": "]"}
+#: Characters that mean the same for alignment (Unicode quotes, dashes, primes).
+_CHAR_MAP = {
+    "\u2018": "'", "\u2019": "'", "\u201a": "'", "\u201b": "'", "\u2032": "'", "`": "'", "\u00b4": "'",
+    "\u201c": '"', "\u201d": '"', "\u201e": '"', "\u201f": '"', "\u2033": '"', "\u00ab": '"', "\u00bb": '"',
+    "\u2010": "-", "\u2011": "-", "\u2012": "-", "\u2013": "-", "\u2014": "-", "\u2015": "-", "\u2212": "-",
+}
+#: Treebank quote tokens: ``word'' for opening and closing double quotes.
+_FORM_MAP = {"``": '"', "''": '"'}
+_EVENT = re.compile(r"\{[^{}\s]+\}")
+
+
+def unescape(form: str) -> str:
+    """The written word behind a treebank leaf (``-LRB-`` -> ``(``)."""
+    return BRACKET_ESCAPES.get(form, form)
+
+
+def is_event(form: str) -> bool:
+    """A non-speech event written in braces, e.g. ``{laugh}``."""
+    return bool(_EVENT.fullmatch(form))
+
+
+@lru_cache(maxsize=65536)
+def _char(c: str) -> str:
+    """Normal form of one character (may be empty for whitespace, or several characters)."""
+    if c.isspace():
+        return ""
+    c = _CHAR_MAP.get(c, c)
+    out = unicodedata.normalize("NFKC", c).casefold()
+    return "".join(_CHAR_MAP.get(x, x) for x in out if not x.isspace())
+
+
+@lru_cache(maxsize=65536)
+def normalise_form(form: str) -> str:
+    """Normal form of a whole leaf: unescaped, quotes and dashes unified, case folded, no spaces."""
+    form = _FORM_MAP.get(form, unescape(form))
+    return "".join(_char(c) for c in form)
+
+
+def normalise_text(text: str) -> tuple[str, np.ndarray]:
+    """Normal form of a text and, per normal character, the index of the original character."""
+    parts: list[str] = []
+    origin: list[int] = []
+    for i, c in enumerate(text):
+        if c.isascii():
+            if c.isspace():
+                continue
+            n = c.lower() if c != "`" else "'"
+        else:
+            n = _char(c)
+        if n:
+            parts.append(n)
+            origin.extend([i] * len(n))
+    return "".join(parts), np.asarray(origin, dtype=np.int64)
