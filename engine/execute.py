@@ -46,8 +46,11 @@ class CompiledQuery:
     def kind(self) -> str:
         return self.state.sql.kind
 
-    def explain_text(self) -> str:
-        """What each pass made of the query: variables, join order with estimates, SQL, parameters."""
+    def explain_text(self, con: duckdb.DuckDBPyConnection | None = None) -> str:
+        """What each pass made of the query: variables, join order with estimates, SQL, parameters.
+
+        With a connection, DuckDB's own physical plan follows (the joins it chose).
+        """
         st = self.state
         lines = ["query:", *("  " + line for line in self.text.strip().splitlines()), "", "variables:"]
         for var, info in st.checked.layers.items():
@@ -62,6 +65,14 @@ class CompiledQuery:
         lines += ["  " + part for part in _pretty_sql(self.sql)]
         lines += ["", "parameters:"]
         lines += [f"  ${i + 1} = {p!r}" for i, p in enumerate(self.params)] or ["  none"]
+        if con is not None:
+            try:
+                cur = _cursor(con)
+                rows = cur.execute("EXPLAIN " + self.sql, self.params).fetchall()
+                cur.close()
+            except duckdb.Error as err:
+                rows = [("", f"(DuckDB could not plan it: {_first_line(err)})")]
+            lines += ["", "duckdb plan:"] + ["  " + line for row in rows for line in str(row[-1]).splitlines()]
         return "\n".join(lines)
 
 
@@ -85,12 +96,28 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
     """Every match of ``text`` in document order (or the aggregate it asks for)."""
     compiled = compile_query(text, catalog, limit=limit, context=context)
     try:
-        table = con.sql(compiled.sql, params=compiled.params).to_arrow_table()
+        table = _fetch_arrow(con, compiled.sql, compiled.params)
     except (duckdb.InvalidInputException, duckdb.ConversionException) as err:
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
                           line=1, column=1) from None
     table = table.rename_columns(compiled.columns)
     return Hits(table, compiled.kind, text, compiled.sql)
+
+
+def _cursor(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
+    """A separate cursor on the same database, so an unfinished result of the caller's
+    connection cannot block the query; Python variables never stand in for missing views."""
+    cur = con.cursor()
+    cur.execute("SET python_enable_replacements = false")
+    return cur
+
+
+def _fetch_arrow(con: duckdb.DuckDBPyConnection, sql: str, params: list[object]):
+    cur = _cursor(con)
+    try:
+        return cur.sql(sql, params=params).to_arrow_table()
+    finally:
+        cur.close()
 
 
 def _first_line(err: Exception) -> str:

@@ -228,7 +228,7 @@ class _Checker:
                                   b.pos, "word, token and char units go with distance(a, b)")
                     continue
                 tb = _type(b)
-                if ta == "str" and tb in NUMERIC:
+                if ta == "str" and tb in NUMERIC | {"literal_number"}:
                     self.fail(f"{_written(a)} is text but {b.value!r} is a number", b.pos,
                               f'quote it: "{b.value}"')
                 if ta in NUMERIC and tb == "str":

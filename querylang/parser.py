@@ -266,6 +266,9 @@ def _expected(names: set[str] | frozenset[str]) -> str:
         if name in TERMINAL_NAMES:
             shown.append(TERMINAL_NAMES[name])
             continue
+        if name.startswith("_") and name[1:].isalpha():      # keywords: _FIND -> "find"
+            shown.append(f'"{name[1:].lower()}"')
+            continue
         term = next((t for t in _lark().terminals if t.name == name), None)
         if term is not None and term.pattern.type == "str":
             shown.append(f'"{term.pattern.value}"')

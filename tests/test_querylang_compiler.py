@@ -1,0 +1,108 @@
+"""Compiler: literals travel only as bound parameters, identifiers only from the catalog."""
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from engine.execute import compile_query, run_query
+from querylang.compiler import ident
+from querylang.pipeline import PASSES, run_passes
+from tests.querylang_corpus import ferry_corpus
+
+HOSTILE = [
+    "x'; DROP TABLE word; --",
+    'a"; DELETE FROM token; --',
+    "../../../etc/passwd",
+    "'); COPY word TO '/tmp/stolen.csv'; --",
+    "read_parquet('/etc/shadow')",
+    "$1 OR true",
+    "\\\\ ; ATTACH 'evil.db'",
+]
+
+
+@pytest.fixture(scope="module")
+def corpus():
+    return ferry_corpus()
+
+
+def quoted(value: str) -> str:
+    return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
+def string_literals_of(sql: str) -> list[str]:
+    return re.findall(r"'[^']*'", sql)
+
+
+def test_pipeline_is_one_visible_list():
+    assert [p.__name__ for p in PASSES] == ["parse", "check", "plan", "to_sql"]
+
+
+@pytest.mark.parametrize("value", HOSTILE)
+def test_hostile_strings_become_parameters(corpus, value):
+    con, cat = corpus
+    text = (f"find w = word(form = {quoted(value)} or form in [{quoted(value)}] or form matches {quoted(re.escape(value))})"
+            f" where w.sentence.speaker != {quoted(value)}")
+    before = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("word", "token")]
+    compiled = compile_query(text, cat)
+    assert value not in compiled.sql
+    assert string_literals_of(compiled.sql) == []          # no quoted value at all in the SQL text
+    assert value in compiled.params
+    hits = run_query(con, cat, text)
+    assert len(hits) == 0
+    # nothing was dropped or deleted
+    after = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("word", "token")]
+    assert after == before and before[0] > 0
+
+
+def test_numbers_units_and_labels_are_parameters(corpus):
+    _, cat = corpus
+    compiled = compile_query('find a = token, b = token where a depends on b as "nsubj" and '
+                             'distance(a, b) > 7 words and gap(a, b) < 250ms limit 3', cat)
+    assert "nsubj" not in compiled.sql and " 7" not in compiled.sql and "250" not in compiled.sql
+    assert {"nsubj", 7, 0.25, 3} <= set(compiled.params)
+
+
+def test_every_identifier_is_quoted_catalog_name_or_generated_alias(corpus):
+    _, cat = corpus
+    compiled = compile_query('find np = phrase(label = "NP"), w = word where w inside np show w.feats_missing_ok'
+                             .replace(" show w.feats_missing_ok", " show w.form, w.doc.genre"), cat)
+    quoted_names = set(re.findall(r'"((?:[^"]|"")*)"', compiled.sql))
+    catalog_names = set(cat.layers()) | {"documents", "doc", "sentence"}
+    for info in cat.layers().values():
+        catalog_names |= set(info.attrs)
+    catalog_names |= {"id", "doc", "start", "end", "t_start", "t_end", "sent", "ord", "word_first", "word_last",
+                      "tok_first", "tok_last", "parent", "depth", "pre", "post", "reading", "text", "base",
+                      "length", "name", "genre", "sent_id", "src", "dst", "label"}
+    assert quoted_names <= catalog_names
+    # bare words in the SQL are keywords, functions or generated aliases (v0, w0_1, e0, c3, _x0, ...)
+    unquoted = re.sub(r'"(?:[^"]|"")*"', "", compiled.sql)
+    names = set(re.findall(r"[A-Za-z_][A-Za-z_0-9]*", unquoted))
+    assert "np" not in names and "w" not in names                  # user variable names never reach SQL
+
+
+def test_ident_escapes_double_quotes():
+    assert ident('a"b') == '"a""b"'
+
+
+def test_explain_lists_passes_output(corpus):
+    con, cat = corpus
+    compiled = compile_query('find s = token(deprel = "nsubj"), v = token where s depends on v count by v.lemma', cat)
+    text = compiled.explain_text(con)
+    for part in ("variables:", "join order:", "sql:", "parameters:", "$1 = 'nsubj'", "duckdb plan:"):
+        assert part in text
+
+
+def test_join_order_starts_from_the_most_selective_variable(corpus):
+    _, cat = corpus
+    state = run_passes('find w = word, v = token(lemma = "book") where w inside v', cat)
+    assert state.plan.order == ("v", "w")
+    assert state.plan.estimates["v"] < state.plan.estimates["w"]
+
+
+def test_top_level_dependency_is_a_join_and_nested_one_is_exists(corpus):
+    _, cat = corpus
+    top = compile_query("find a = token, b = token where a depends on b", cat).sql
+    nested = compile_query("find a = token, b = token where a depends on b or b depends on a", cat).sql
+    assert "SELECT DISTINCT" in top and "EXISTS" not in top
+    assert "EXISTS" in nested
