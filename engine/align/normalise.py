@@ -16,12 +16,8 @@ import numpy as np
 #: Treebank escapes for characters that would clash with the bracket syntax
 #: (the Penn Treebank convention: -LRB- for "(", -RRB- for ")", and so on).
 BRACKET_ESCAPES = {"-LRB-": "(", "-RRB-": ")", "-LCB-": "{", "-RCB-": "}", "-LSB-": "[", "-RSB-": "]"}
-#: Characters that mean the same for alignment (Unicode quotes, dashes, primes).
-_CHAR_MAP = {
-    "\u2018": "'", "\u2019": "'", "\u201a": "'", "\u201b": "'", "\u2032": "'", "`": "'", "\u00b4": "'",
-    "\u201c": '"', "\u201d": '"', "\u201e": '"', "\u201f": '"', "\u2033": '"', "\u00ab": '"', "\u00bb": '"',
-    "\u2010": "-", "\u2011": "-", "\u2012": "-", "\u2013": "-", "\u2014": "-", "\u2015": "-", "\u2212": "-",
-}
+#: Characters that mean the same for alignment, beyond the Unicode classes below.
+_CHAR_MAP = {"`": "'", "\u00b4": "'", "\u2032": "'", "\u2033": '"', "\u2212": "-"}
 #: Treebank quote tokens: ``word'' for opening and closing double quotes.
 _FORM_MAP = {"``": '"', "''": '"'}
 _EVENT = re.compile(r"\{[^{}\s]+\}")
@@ -42,9 +38,26 @@ def _char(c: str) -> str:
     """Normal form of one character (may be empty for whitespace, or several characters)."""
     if c.isspace():
         return ""
-    c = _CHAR_MAP.get(c, c)
-    out = unicodedata.normalize("NFKC", c).casefold()
-    return "".join(_CHAR_MAP.get(x, x) for x in out if not x.isspace())
+    out = unicodedata.normalize("NFKC", c)
+    return "".join((_CHAR_MAP.get(x) or _unify_punct(x)).casefold() for x in out if not x.isspace())
+
+
+def _unify_punct(c: str) -> str:
+    """Dashes (Unicode class Pd) to ``-``; quotation marks to ``"`` (double) or ``'`` (single).
+
+    Quotation marks are told by their Unicode names (initial/final punctuation, Pi/Pf,
+    and the other characters named QUOTATION MARK), so the rule follows the standard.
+    """
+    if c.isascii():
+        return c
+    cat = unicodedata.category(c)
+    if cat == "Pd":
+        return "-"
+    if cat in ("Pi", "Pf", "Po", "Ps", "Pe"):
+        name = unicodedata.name(c, "")
+        if "QUOTATION MARK" in name:
+            return '"' if "DOUBLE" in name or "ANGLE QUOTATION" in name and "SINGLE" not in name else "'"
+    return c
 
 
 @lru_cache(maxsize=65536)

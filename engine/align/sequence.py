@@ -1,8 +1,10 @@
 """Character-level alignment of a layer's leaves to a document's primary text.
 
 The leaves of a whole document are normalised and concatenated, the text is
-normalised, and one edit-distance alignment (edlib, infix mode: the leaves may cover
-only part of the text) maps every leaf character to a text character or to a gap.
+normalised, and one global edit-distance alignment (edlib, mode NW) maps every leaf
+character to a text character or to a gap. Global, not infix: with free text ends a
+last word behind dropped punctuation ("time\". [5]") would rather be left out than
+matched. A caller whose leaves cover only part of a text passes that part.
 Offset arrays map the alignment back to leaves and original characters, so the cost
 is one alignment per document, not one per leaf.
 
@@ -47,16 +49,18 @@ class Alignment:
         return sum(1 for c in self.cls if c in GOOD)
 
 
-def align_forms(text: str, forms: Sequence[str], lo: int = 0) -> Alignment:
-    """Align ``forms`` (in order) to ``text``; spans are character offsets into ``text``.
+def align_forms(text: str, forms: Sequence[str], lo: int = 0, hi: int | None = None) -> Alignment:
+    """Align ``forms`` (in order) to ``text[lo:hi]``; spans are character offsets into ``text``.
 
-    ``lo`` is where unaligned leaves before the first aligned one are put.
+    Unaligned leaves before the first aligned one are put at ``lo``.
     """
+    hi = len(text) if hi is None else hi
     n = len(forms)
     start = np.full(n, -1, dtype=np.int64)
     end = np.full(n, -1, dtype=np.int64)
     score = np.zeros(n, dtype=np.float64)
-    target, origin = normalise_text(text)
+    target, origin = normalise_text(text[lo:hi])
+    origin = origin + lo
     text_has_events = "{" in target
     # events the text does not have are not aligned: they would only be gaps
     use = [not (is_event(f) and not text_has_events) for f in forms]
@@ -110,9 +114,8 @@ def align_forms(text: str, forms: Sequence[str], lo: int = 0) -> Alignment:
 def _columns(query: str, target: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Matched columns of the alignment: query index, target index, equal or not."""
     q, t = _alphabet_safe(query, target)
-    res = edlib.align(q, t, mode="HW", task="path")
-    t0 = res["locations"][0][0] if res["locations"] else 0
-    t0 = 0 if t0 is None else t0
+    res = edlib.align(q, t, mode="NW", task="path")
+    t0 = 0
     pairs = _CIGAR.findall(res["cigar"] or "")
     counts = np.fromiter((int(k) for k, _ in pairs), dtype=np.int64, count=len(pairs))
     ops = np.array([op for _, op in pairs], dtype="<U1")

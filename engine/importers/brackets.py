@@ -212,7 +212,7 @@ def _sentences(batch: Batch) -> dict[str, tuple[int, int, int, int]]:
     with duckdb.connect() as con:
         rows = con.execute(f"SELECT sent_id, id, doc, start, \"end\" FROM {parquet(paths)} "
                            "WHERE sent_id IS NOT NULL").fetchall()
-    return {r[0]: tuple(r[1:]) for r in rows}
+    return {r[0]: tuple(int(v) for v in r[1:]) for r in rows}
 
 
 class BracketsImporter:
@@ -284,11 +284,13 @@ class BracketsImporter:
                        "parse with --layer NAME or --prefix NAME", groups[0].trees[0].line)
         if all(g.sent_span is not None for g in groups):
             groups.sort(key=lambda g: g.sent_span[0])
-        # one alignment per document over the first reading of every sentence
         firsts = [g.trees[0] for g in groups]
         leaf_lists = [self._word_leaves(t) for t in firsts]
-        forms = [unescape(t.nodes[i].form) for t, ls in zip(firsts, leaf_lists) for i in ls]
-        al = align_forms(info.text, forms)
+        by_sentence = all(g.sent_span is not None for g in groups)
+        if not by_sentence:
+            # one alignment per document over the first reading of every tree, in order
+            forms = [unescape(t.nodes[i].form) for t, ls in zip(firsts, leaf_lists) for i in ls]
+            al = align_forms(info.text, forms)
         cols: dict[str, list] = {k: [] for k in (
             "id", "doc", "start", "end", "sent", "parent", "depth", "pre", "post", "reading", "label", "cat",
             "func", "index", "gap", "trace_of", "is_leaf", "empty", "form", "pos", "align", "align_score",
@@ -296,7 +298,13 @@ class BracketsImporter:
         k = 0
         for g, t0, ls in zip(groups, firsts, leaf_lists):
             n = len(ls)
-            base = (al.start[k:k + n], al.end[k:k + n], al.cls[k:k + n], al.score[k:k + n])
+            if by_sentence:
+                # the sentences are known: each tree aligns to its own (edit distance does
+                # not reward keeping a word together, so a long stretch of text without
+                # trees would let a word's letters scatter over it)
+                base = self._align_alone(info, g, t0, ls)
+            else:
+                base = (al.start[k:k + n], al.end[k:k + n], al.cls[k:k + n], al.score[k:k + n])
             k += n
             for reading, tree in enumerate(g.trees):
                 mine = self._word_leaves(tree)
@@ -323,8 +331,8 @@ class BracketsImporter:
 
     def _align_alone(self, info: DocInfo, g: _Group, tree: Tree, leaves: list[int]) -> tuple:
         lo, hi = (g.sent_span[0] - info.base, g.sent_span[1] - info.base) if g.sent_span else (0, len(info.text))
-        al = align_forms(info.text[lo:hi], [unescape(tree.nodes[i].form) for i in leaves])
-        return al.start + lo, al.end + lo, al.cls, al.score
+        al = align_forms(info.text, [unescape(tree.nodes[i].form) for i in leaves], lo, hi)
+        return al.start, al.end, al.cls, al.score
 
     def _emit(self, info: DocInfo, g: _Group, tree: Tree, reading: int, words: list[int], spans: tuple,
               cols: dict[str, list]) -> None:
