@@ -237,6 +237,8 @@ class Batch:
         self._meta = {k: int(v) for k, v in store._rows(
             "SELECT key, value FROM meta WHERE key IN ('next_id', 'next_base', 'next_chain')")}
         self._docs: list[DocInfo] = []
+        self._doc_names: dict[str, DocInfo] = {}
+        self._stored_names = {n for (n,) in store._rows("SELECT name FROM documents")}
         self._doc_attrs: list[tuple[int, str, str]] = []
         self._writers: dict[str, tuple[str, str, pq.ParquetWriter, Path]] = {}
         self._rows: dict[str, int] = {}
@@ -264,20 +266,21 @@ class Batch:
         return first
 
     def existing_document(self, name: str) -> DocInfo | None:
-        for d in self._docs:
-            if d.name == name:
-                return d
-        return self.store.document(name)
+        staged = self._doc_names.get(name)
+        return staged if staged is not None else self.store.document(name)
 
     def add_document(self, name: str, text: str, attrs: dict[str, str] | None = None) -> DocInfo:
         """A new document at the end of the global coordinate line."""
-        if self.existing_document(name) is not None:
+        if name in self._doc_names:
+            raise StrataError(f"document {name!r} occurs twice in this import")
+        if name in self._stored_names:
             raise StrataError(f"document {name!r} is already in the corpus")
         base = self._meta["next_base"]
         info = DocInfo(self._next_doc, name, base, len(text), text)
         self._next_doc += 1
         self._meta["next_base"] = base + len(text) + DOC_GAP
         self._docs.append(info)
+        self._doc_names[name] = info
         for k, v in (attrs or {}).items():
             self._doc_attrs.append((info.doc, k, v))
         return info
@@ -356,6 +359,21 @@ class Batch:
             self._writers[layer] = entry
         entry[2].write_table(table, row_group_size=ROW_GROUP_SIZE)
         self._rows[entry[1]] = self._rows.get(entry[1], 0) + table.num_rows
+
+    def layer_kind(self, layer: str) -> str | None:
+        entry = self._layer_props.get(layer)
+        return entry[0] if entry else None
+
+    def add_staged(self, layer: str, path: Path, rows: int) -> None:
+        """Adopt a Parquet part that was written straight into the staging folder.
+
+        ``path`` must be ``self.stage / f"{layer}--<anything>.parquet"`` and the layer declared.
+        """
+        if layer not in self._layer_props:
+            raise StrataError(f"layer {layer!r} was not declared before its part was staged")
+        if path.parent != self.stage or not path.name.startswith(layer + "--"):
+            raise ValueError(f"{path} is not a staged part of {layer}")
+        self._rows[str(path)] = rows
 
     def staged_paths(self, layer: str) -> list[Path]:
         """Staged part files of a layer (closes its open writer)."""

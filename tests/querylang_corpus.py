@@ -125,13 +125,14 @@ class CorpusBuilder:
                     cols[c] = []
             if spec.readings:
                 cols["reading"] = []
-            chains = self._chains(rows) if any(n.entity for n in rows) else {}
+            coref = name == "mention" or any(n.entity for n in rows)
+            chains = self._chains(rows)
             attr_names: list[str] = []
             for n in rows:
                 for a in n.attrs:
                     if a not in attr_names and a != "reading":
                         attr_names.append(a)
-            if chains:
+            if coref:
                 attr_names += ["chain", "chain_pos", "first_mention"]
             for a in attr_names:
                 cols[a] = []
