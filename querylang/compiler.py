@@ -12,13 +12,18 @@ Definitions the SQL implements (the user-facing semantics):
   every span with ``start <= p <= end`` (a pause right after the last word of a sentence is
   inside that sentence).  ``overlaps`` means sharing at least one character, so a zero-width
   node overlaps nothing.  A node is never inside, overlapping or the same span as itself.
-* ``a precedes b``: ``a.end <= b.start and a.start < b.end`` (two points at the same place
-  precede neither way).  ``within N words|tokens|chars`` bounds ``distance``.
+* ``a precedes b``: both in one document, ``a.end <= b.start and a.start < b.end`` (two
+  points at the same place precede neither way).  ``within N words|tokens|chars`` bounds
+  ``distance``.  Inside/overlaps/same span need no document test: documents never share
+  a character of the global line.
 * ``distance(a, b)``: the number of words (``tokens``/``chars`` with that unit) strictly
-  between the two nodes; 0 when adjacent or overlapping.
-* ``directly precedes``: for two nodes of one token layer ``b.ord = a.ord + 1``; otherwise
-  ``a`` precedes ``b`` and no token of the shared token layer lies between them
-  (``b.first = a.last + 1`` in that layer's ordinals).
+  between the two nodes; 0 when adjacent or overlapping; no value for nodes of different
+  documents.  Words and tokens are counted
+  with the ordinals of the words each node covers (``word_first``..``word_last``), so a node
+  covering no word (a zero-width point without ordinals) has no distance in words.
+* ``directly precedes``: in one document, for two nodes of one token layer
+  ``b.ord = a.ord + 1``; otherwise ``a`` precedes ``b`` and no token of the shared token
+  layer lies between them (``b.first = a.last + 1`` in that layer's ordinals).
 * Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
   the same document (each document has its own recording clock).  ``within T`` is a
   tolerance: two end points are equal when they differ by at most T, and one is before the
@@ -136,13 +141,16 @@ class SqlBuilder:
         raise AssertionError(e)
 
     def distance(self, a: str, b: str, la: LayerInfo, lb: LayerInfo, unit: str) -> str:
+        same_doc = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
         if unit == "chars":
-            return (f"greatest(0, {self.col(b, 'start')} - {self.col(a, 'end')}, "
-                    f"{self.col(a, 'start')} - {self.col(b, 'end')})")
+            return (f"(CASE WHEN {same_doc} THEN greatest(0, {self.col(b, 'start')} - {self.col(a, 'end')}, "
+                    f"{self.col(a, 'start')} - {self.col(b, 'end')}) END)")
         fa, la_ = ordinals(la, unit)
         fb, lb_ = ordinals(lb, unit)
-        return (f"greatest(0, {self.col(b, fb)} - {self.col(a, la_)} - 1, "
-                f"{self.col(a, fa)} - {self.col(b, lb_)} - 1)")
+        # greatest() skips NULLs, so a node without ordinals must be caught first
+        known = " AND ".join(f"{self.col(x, y)} IS NOT NULL" for x, y in ((a, fa), (a, la_), (b, fb), (b, lb_)))
+        return (f"(CASE WHEN {same_doc} AND {known} THEN greatest(0, {self.col(b, fb)} - {self.col(a, la_)} - 1, "
+                f"{self.col(a, fa)} - {self.col(b, lb_)} - 1) END)")
 
     # ---- conditions ----------------------------------------------------------------------
     def cond(self, c: ast.Cond, scope: Scope, top: bool = False) -> str:
@@ -195,11 +203,13 @@ class SqlBuilder:
         if name == "inside":
             return f"({c(b, 'start')} <= {c(a, 'start')} AND {c(a, 'end')} <= {c(b, 'end')} AND {different})"
         if name == "overlaps":
-            return f"({c(a, 'start')} < {c(b, 'end')} AND {c(b, 'start')} < {c(a, 'end')} AND {different})"
+            return (f"({c(a, 'start')} < {c(b, 'end')} AND {c(b, 'start')} < {c(a, 'end')} AND "
+                    f"{c(a, 'start')} < {c(a, 'end')} AND {c(b, 'start')} < {c(b, 'end')} AND {different})")
         if name == "same span as":
             return f"({c(a, 'start')} = {c(b, 'start')} AND {c(a, 'end')} = {c(b, 'end')} AND {different})"
         if name == "precedes":
-            out = f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')}"
+            out = (f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')} AND "
+                   f"{c(a, 'doc')} = {c(b, 'doc')}")
             if r.within is not None:
                 unit = r.within.unit or "words"
                 out += f" AND {self.distance(a, b, la, lb, unit)} <= {self.param(r.within.value)}"
@@ -208,11 +218,11 @@ class SqlBuilder:
             ref = _adjacency_layer(la, lb)
             assert ref is not None
             if la.name == lb.name == ref:
-                return f"({c(b, 'ord')} = {c(a, 'ord')} + 1)"
+                return f"({c(b, 'ord')} = {c(a, 'ord')} + 1 AND {c(a, 'doc')} = {c(b, 'doc')})"
             _, last_a = ordinals_in(la, ref)
             first_b, _ = ordinals_in(lb, ref)
-            return (f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')} AND "
-                    f"{c(b, first_b)} = {c(a, last_a)} + 1)")
+            return (f"({c(b, first_b)} = {c(a, last_a)} + 1 AND {c(a, 'end')} <= {c(b, 'start')} AND "
+                    f"{c(a, 'doc')} = {c(b, 'doc')})")
         if name == "child of":
             return f"({c(a, 'parent')} = {c(b, 'id')})"
         if name == "sibling of":
@@ -235,8 +245,8 @@ class SqlBuilder:
 
     def dependency(self, r: ast.Relation, a: str, b: str, scope: Scope, top: bool) -> str:
         edges = ident(r.via or "dep")
-        label = f" WHERE {ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
         if top:
+            label = f" WHERE {ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
             e = f"e{self.n_edges}"
             self.n_edges += 1
             scope.edge_joins.append(f"(SELECT DISTINCT {ident('src')}, {ident('dst')} FROM {edges}{label}) AS {e}")

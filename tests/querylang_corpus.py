@@ -38,6 +38,7 @@ class LayerSpec:
     token_layer: str | None = None
     word_layer: str | None = None
     edge_sets: tuple[str, ...] = ()
+    time: bool | None = None          # None: true when some node has a time span
     types: dict[str, str] = field(default_factory=dict)
 
 
@@ -177,7 +178,7 @@ class CorpusBuilder:
                 attrs[a] = AttrInfo(a, types.get(a, "str"), len(set(values)), len(cols[a]) - len(values))
             layer_infos[name] = LayerInfo(
                 name, spec.kind, attrs, len(rows), tree=spec.tree,
-                time=any(n.time for n in rows), readings=spec.readings,
+                time=spec.time if spec.time is not None else any(n.time for n in rows), readings=spec.readings,
                 token_layer=spec.token_layer, word_layer=spec.word_layer, edge_sets=spec.edge_sets)
         for set_name, edges in self.edges.items():
             table = pa.table({
