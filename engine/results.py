@@ -100,19 +100,20 @@ class Hits:
                                                   and not c.endswith((".char_start", ".char_end"))]
         cells = [[_cell(r[c]).replace("\n", " ").replace("\t", " ") for c in cols] for r in shown]
         widths = [max([len(c)] + [len(row[i]) for row in cells]) for i, c in enumerate(cols)]
-        # shrink the widest columns until the table fits, but keep at least 4 characters each
-        sep = 2
-        while sum(widths) + sep * (len(widths) - 1) > width and max(widths) > 4:
+        # shrink the widest column down to a legible minimum, then drop columns from the end
+        sep, legible = 2, 8
+
+        def total() -> int:
+            return sum(widths) + sep * (len(widths) - 1)
+        while total() > width:
             i = widths.index(max(widths))
-            widths[i] -= 1
-        total = 0
-        keep = 0
-        for w in widths:
-            if total + w > width and keep > 0:
+            if widths[i] > legible:
+                widths[i] -= 1
+            elif len(widths) > 1:
+                cols, widths = cols[:-1], widths[:-1]
+            else:
+                widths[0] = max(width, 1)
                 break
-            total += w + sep
-            keep += 1
-        cols, widths = cols[:keep], widths[:keep]
 
         def fit(text: str, w: int, right: bool = False) -> str:
             if len(text) > w:
@@ -125,6 +126,7 @@ class Hits:
         lines.append("  ".join("-" * w for w in widths))
         for row in cells:
             lines.append("  ".join(fit(row[i], widths[i], cols[i] in right_aligned) for i in range(len(cols))))
+        lines = [line[:width] for line in lines]
         if len(rows) > len(shown):
             lines.append(f"... {len(rows) - len(shown)} more rows")
         lines.append(f"({len(rows)} {'row' if len(rows) == 1 else 'rows'})")

@@ -8,8 +8,9 @@ suggestions from :mod:`difflib`.
 from __future__ import annotations
 
 import difflib
-import re
 from dataclasses import dataclass, field, replace
+
+import duckdb
 
 from engine.errors import StrataError
 from querylang import ast
@@ -61,6 +62,22 @@ def columns_of(layer: LayerInfo) -> dict[str, str]:
     for name, info in layer.attrs.items():
         cols[name] = info.type
     return cols
+
+
+_REGEX_CON: duckdb.DuckDBPyConnection | None = None
+
+
+def regex_problem(pattern: str) -> str | None:
+    """Why the pattern is not a valid RE2 expression (the engine's dialect), or None."""
+    global _REGEX_CON
+    if _REGEX_CON is None:
+        _REGEX_CON = duckdb.connect()
+    try:
+        _REGEX_CON.execute("SELECT regexp_matches('', $1)", [pattern]).fetchall()
+    except duckdb.Error as err:
+        text = str(err).strip().splitlines()[0]
+        return text.split(":", 1)[-1].strip() if ":" in text else text
+    return None
 
 
 def suggest(name: str, candidates: list[str] | set[str]) -> str | None:
@@ -190,10 +207,10 @@ class _Checker:
             if _type(expr) != "str":
                 self.fail(f"a regular expression needs a text value, but {_written(expr)} is {_type_name(expr)}",
                           cond.pos, "compare numbers with =, <, > instead")
-            try:
-                re.compile(str(cond.pattern.value))
-            except re.error as err:
-                self.fail(f"bad regular expression: {err}", cond.pattern.pos)
+            problem = regex_problem(str(cond.pattern.value))
+            if problem:
+                self.fail(f"bad regular expression: {problem}", cond.pattern.pos,
+                          "the syntax is RE2's (no look-around, no back-references)")
             return replace(cond, expr=expr)
         if isinstance(cond, ast.Missing):
             return replace(cond, expr=self.expr(cond.expr, scope, own))
