@@ -25,6 +25,8 @@ from pathlib import Path
 import duckdb
 import numpy as np
 import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pa_csv
 
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
@@ -59,6 +61,7 @@ class ConlluImporter:
         self.names = {k: L(k) for k in ("token", "word", "empty", "sentence", "mention", "dep", "enhanced")}
         self.con = duckdb.connect()
         self.con.execute("SET python_enable_replacements = false")
+        self.con.execute("SET enable_progress_bar = false")
         self.con.execute(f"SET memory_limit = {_q(MEMORY_LIMIT)}")
         self.con.execute(f"SET temp_directory = {_q(str(batch.stage / 'spill'))}")
         self.tok_ord = self._scalar_from_layer(self.names["token"], "coalesce(max(ord) + 1, 0)", 0)
@@ -126,23 +129,37 @@ class ConlluImporter:
         self.report.add("documents", self.n_docs)
 
     def _read_lines(self, path: Path) -> None:
-        con = self.con
+        """All lines with their number, kind (0 blank, 1 comment, 2 token), sentence and document counters.
+
+        pyarrow's CSV reader (multi-threaded, one column, no quoting) splits the lines and
+        checks UTF-8; the counters are numpy cumulative sums.
+        """
         try:
-            con.execute("CREATE OR REPLACE TABLE raw AS SELECT generate_subscripts(l, 1) AS n, unnest(l) AS line "
-                        "FROM (SELECT string_split(content, chr(10)) AS l FROM read_text(?))", [str(path)])
-        except (duckdb.InvalidInputException, duckdb.ConversionException, duckdb.IOException) as e:
-            if "UTF" in str(e) or "utf" in str(e) or "unicode" in str(e).lower():
+            table = pa_csv.read_csv(
+                path, read_options=pa_csv.ReadOptions(column_names=["line"], block_size=1 << 24),
+                parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
+                                                  ignore_empty_lines=False, newlines_in_values=False),
+                convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False,
+                                                      quoted_strings_can_be_null=False))
+        except pa.ArrowInvalid as e:
+            if "UTF8" in str(e) or "utf8" in str(e).lower() or "utf-8" in str(e).lower():
                 _raise_bad_utf8(path)
             raise StrataError(f"cannot read: {e}", file=str(path)) from None
-        # classify lines; s = sentence number (blank lines seen before), d = newdoc comments seen
-        con.execute("""
-            CREATE OR REPLACE TABLE lines AS
-            SELECT n, rtrim(line, chr(13)) AS line,
-                   CASE WHEN rtrim(line, chr(13)) = '' THEN 0 WHEN line[1] = '#' THEN 1 ELSE 2 END AS k,
-                   sum(CASE WHEN rtrim(line, chr(13)) = '' THEN 1 ELSE 0 END) OVER w AS s,
-                   sum(CASE WHEN starts_with(line, '# newdoc') THEN 1 ELSE 0 END) OVER w AS d
-            FROM raw WINDOW w AS (ORDER BY n ROWS UNBOUNDED PRECEDING)""")
-        con.execute("DROP TABLE raw")
+        except OSError as e:
+            raise StrataError(f"cannot read: {e}", file=str(path)) from None
+        line = table.column("line")
+        if table.num_rows and pc.any(pc.ends_with(line, "\r")).as_py():
+            line = pc.utf8_rtrim(line, characters="\r")
+        blank = pc.equal(line, "").to_numpy(zero_copy_only=False)
+        comment = pc.starts_with(line, "#").to_numpy(zero_copy_only=False)
+        newdoc = pc.starts_with(line, "# newdoc").to_numpy(zero_copy_only=False)
+        kind = np.where(blank, 0, np.where(comment, 1, 2)).astype(np.int8)
+        lines = pa.table({"n": pa.array(np.arange(1, table.num_rows + 1, dtype=np.int64)), "line": line,
+                          "k": pa.array(kind), "s": pa.array(np.cumsum(blank, dtype=np.int64)),
+                          "d": pa.array(np.cumsum(newdoc, dtype=np.int64))})
+        self.con.register("lines_arrow", lines)
+        self.con.execute("CREATE OR REPLACE TABLE lines AS SELECT * FROM lines_arrow")
+        self.con.unregister("lines_arrow")
 
     def _structure(self) -> None:
         """Token rows split into the ten columns; comments parsed into key/value."""
@@ -431,8 +448,9 @@ class ConlluImporter:
                         ELSE u.lstart + least(words.part_end - length(words.form), length(u.form)) END AS lstart,
                    CASE WHEN words.in_mwt IS NULL OR words.last_part THEN u.lstart + length(u.form)
                         ELSE u.lstart + least(words.part_end, length(u.form)) END AS lend
-            FROM words JOIN unit2 u ON u.s = words.s AND (
-                (words.in_mwt IS NULL AND u.n = words.n) OR (words.in_mwt IS NOT NULL AND u.m_first = words.in_mwt))""")
+            FROM words JOIN unit2 u ON u.s = words.s
+                AND (CASE WHEN u.kind = 'm' THEN u.m_first ELSE -u.n END)
+                  = (CASE WHEN words.in_mwt IS NULL THEN -words.n ELSE words.in_mwt END)""")
         con.execute(f"UPDATE w SET widx = widx + {self.tok_ord}")
         self.tok_ord += n_tok
         self.word_ord += n_unit
@@ -571,9 +589,11 @@ class ConlluImporter:
             f"SELECT DISTINCT split_part(unnest(string_split({col}, '|')), '=', 1) AS k FROM {table} "
             f"WHERE {col} <> '_' AND {where} ORDER BY k").fetchall() if k]
         out = []
+        x = f"('|' || {col})"
         for k in keys:
-            pattern = "(?:^|\\|)" + _re_escape(k) + "=([^|]*)"
-            out.append(f", nullif(regexp_extract({col}, {_q(pattern)}, 1), '') AS {_ident(col + '.' + k)}")
+            needle = _q("|" + k + "=")
+            out.append(f", nullif(CASE WHEN contains({x}, {needle}) THEN split_part(substr({x}, strpos({x}, {needle}) "
+                       f"+ {len(k) + 2}), '|', 1) END, '') AS {_ident(col + '.' + k)}")
         return "".join(out)
 
     def _write(self) -> None:
@@ -749,10 +769,6 @@ class ConlluImporter:
 
 
 _DUCK_TYPES = {pa.int64(): "BIGINT", pa.int32(): "INTEGER", pa.float64(): "DOUBLE", pa.string(): "VARCHAR"}
-
-
-def _re_escape(key: str) -> str:
-    return "".join("\\" + c if c in ".^$*+?{}[]\\|()" else c for c in key)
 
 
 def _raise_bad_utf8(path: Path) -> None:
