@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import argparse
 import bisect
+import functools
 import json
 import math
 import os
@@ -221,11 +222,10 @@ class Lexicon:
 
     def function_word_pronunciations(self) -> dict[str, tuple[str, ...]]:
         """Every closed-class form with its pronunciation (checked against a dictionary in tests)."""
-        out = {}
-        for e in (list(self.dets.values()) + [p[0] for p in self.prons_nom + self.prons_acc]
-                  + self.modals
-                  + list(self.aux.values()) + self.cconjs + self.sconjs + self.fillers + [self.rel_that]):
-            out[e[3].lower()] = e[2]
+        entries = (list(self.dets.values()) + [p[0] for p in self.prons_nom + self.prons_acc]
+                   + self.modals + list(self.aux.values()) + self.cconjs + self.sconjs
+                   + self.fillers + [self.rel_that])
+        out = {e[3].lower(): e[2] for e in entries}
         for f, ph in _ADPS:
             out[f] = tuple(ph.split())
         for f, ph in _NEG_MWT.values():
@@ -756,10 +756,15 @@ def _partial(noun_entry: tuple) -> tuple:
 
 # --- driver ------------------------------------------------------------------------------------
 
+@functools.lru_cache(maxsize=2)
+def _lexicon(seed: int) -> Lexicon:
+    """One lexicon per worker process and seed (building it takes a few tenths of a second)."""
+    return Lexicon(seed)
+
+
 def _shard_job(args: tuple) -> dict:
     seed, shard, quota, out = args
-    lex = Lexicon(seed)
-    return ShardWriter(lex, seed, shard, Path(out)).run(quota)
+    return ShardWriter(_lexicon(seed), seed, shard, Path(out)).run(quota)
 
 
 def manifest_files(n_shards: int) -> list[dict]:
