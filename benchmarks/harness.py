@@ -84,6 +84,8 @@ def import_corpus(folder: Path, manifest: dict, target: Path, formats: list[str]
             out[fmt] = {"seconds": round(time.perf_counter() - t0, 3)}
         except StrataError as e:
             out[fmt] = {"error": str(e).splitlines()[0]}
+        except Exception as e:  # an importer bug: report it and measure the rest
+            out[fmt] = {"error": f"{type(e).__name__}: {str(e).splitlines()[0] if str(e) else ''}"}
     return out
 
 
@@ -203,8 +205,9 @@ def main(argv: list[str] | None = None) -> int:
             imports = {"reused": {"seconds": 0.0}}
         else:
             imports = import_corpus(folder, manifest, target, a.formats)
+        ok = "error" not in imports.get("conllu", {})
         report["scales"].append({"tokens": manifest["tokens"], "generate_seconds": manifest["seconds"],
-                                 "import": imports, "queries": run_suite(target, suite, a.repeat)})
+                                 "import": imports, "queries": run_suite(target, suite, a.repeat) if ok else []})
     print(table(report))
     if a.json:
         a.json.write_text(json.dumps(report, indent=1) + "\n", encoding="utf-8")
