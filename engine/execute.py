@@ -97,7 +97,7 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
     compiled = compile_query(text, catalog, limit=limit, context=context)
     try:
         table = _fetch_arrow(con, compiled.sql, compiled.params)
-    except (duckdb.InvalidInputException, duckdb.ConversionException) as err:
+    except duckdb.Error as err:   # e.g. a value that does not cast; never a traceback
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
                           line=1, column=1) from None
     table = table.rename_columns(compiled.columns)

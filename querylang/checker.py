@@ -255,6 +255,13 @@ class _Checker:
                     self.fail(f"{_written(a)} is true or false", b.pos, "compare with true or false")
                 if ta != "bool" and tb == "bool" and ta != "literal":
                     self.fail(f"{_written(a)} is not true/false", b.pos)
+        if not isinstance(left, ast.Literal) and not isinstance(right, ast.Literal):
+            kinds = {_type(left), _type(right)}
+            if "str" in kinds and kinds & NUMERIC:
+                self.fail(f"{_written(left)} and {_written(right)} are not comparable: one is text, the other "
+                          "a number", pos)
+            if ("time" in kinds and "length" in kinds):
+                self.fail("a time is compared with a distance", pos)
         if op in ("<", "<=", ">", ">=") and "bool" in (_type(left), _type(right)):
             self.fail("true/false values have no order", pos)
 

@@ -39,7 +39,7 @@ class LayerSpec:
     word_layer: str | None = None
     edge_sets: tuple[str, ...] = ()
     time: bool | None = None          # None: true when some node has a time span
-    types: dict[str, str] = field(default_factory=dict)
+    types: dict[str, str] = field(default_factory=dict)   # declared attributes (present even if unused)
 
 
 ARROW_TYPES = {"str": pa.string(), "int": pa.int64(), "float": pa.float64(), "bool": pa.bool_()}
@@ -128,7 +128,7 @@ class CorpusBuilder:
                 cols["reading"] = []
             coref = name == "mention" or any(n.entity for n in rows)
             chains = self._chains(rows)
-            attr_names: list[str] = []
+            attr_names: list[str] = [a for a in spec.types if a not in ("chain", "chain_pos", "first_mention")]
             for n in rows:
                 for a in n.attrs:
                     if a not in attr_names and a != "reading":

@@ -121,3 +121,7 @@ def test_first_mention_forms():
 def test_edge_set_default_is_dep():
     c = run("find a = token, b = token where a depends on b")
     assert c.query.where.via == "dep"
+
+
+def test_comparing_text_with_a_number_column_is_explained():
+    assert "not comparable" in error("find a = token, b = token where a.form = b.id").message
