@@ -3,13 +3,12 @@
 CoNLL-U is the open file standard of Universal Dependencies
 (https://universaldependencies.org/format.html).
 
-The import is vectorised rather than a loop over lines: DuckDB reads the file, splits
-the columns, groups lines into sentences and documents, checks IDs and heads,
-rebuilds each document's text and every node's offsets with window functions, and
-pairs the entity brackets; numpy numbers the dependency trees (:mod:`engine.importers.treeorder`).
-Python touches one value per document, never one per token, which is what makes a
-million-token import take seconds. DuckDB spills to the staging folder past its
-memory limit, so memory stays bounded.
+The import is vectorised, never a Python loop over tokens: pyarrow splits lines and
+columns and checks UTF-8, numpy does the sequence arithmetic (word positions,
+multiword ranges, offsets, the checks of IDs and heads), :mod:`treeorder` numbers
+the dependency trees, and DuckDB pairs entity brackets and pivots comments. A file
+is read in blocks that end at a ``# newdoc`` line, so memory stays bounded by the
+block size (or the largest document).
 
 Layers written (see DEVELOPERS.md): ``token`` (syntactic words, with the dependency
 tree as tree columns), ``word`` (surface tokens: a multiword token once), ``empty``
@@ -19,35 +18,69 @@ primary text of a document is its surface tokens, each followed by a space unles
 """
 from __future__ import annotations
 
-import json
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
+from typing import Iterator
 
 import duckdb
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
+import pyarrow.parquet as pq
 
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.treeorder import TreeError, tree_order
-from engine.progress import step_progress
+from engine.progress import byte_progress
 from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, Batch
 
 FORMAT = "conllu"
 DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
-MEMORY_LIMIT = "6GB"
+BLOCK_BYTES = 64 << 20
+COLUMNS = ["cid", "form", "lemma", "upos", "xpos", "feats", "head", "deprel", "deps", "misc"]
 _ITEM_RE = r"\(([^()]+)\)|\(([^()]+)|([^()]+)\)"
-_STEPS = 8
+_RESERVED = set(ANCHOR_COLUMNS) | {"ord", "sent_id", "text", "comments"}
 
 
 def _q(v: str) -> str:
-    """A SQL string literal (for values the importer itself chose, never for data)."""
+    """A SQL string literal."""
     return "'" + v.replace("'", "''") + "'"
 
 
 def _ident(v: str) -> str:
     return '"' + v.replace('"', '""') + '"'
+
+
+def _np(a) -> np.ndarray:
+    return a.to_numpy(zero_copy_only=False)
+
+
+def _seg_cumsum(values: np.ndarray, starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
+    """Inclusive cumulative sum restarted at each segment start."""
+    cs = np.cumsum(values)
+    base = cs[starts] - values[starts]
+    return cs - np.repeat(base, lengths)
+
+
+def _seg_running_max(values: np.ndarray, seg_id: np.ndarray) -> np.ndarray:
+    """Running maximum restarted per segment (values >= 0; -1 means none yet)."""
+    big = np.int64(values.max() + 2 if len(values) else 2)
+    shifted = seg_id * big + (values + 1)
+    run = np.maximum.accumulate(shifted)
+    return run - seg_id * big - 1
+
+
+class _Problems:
+    """Bad places found by the vectorised checks: (line, sentence, message)."""
+
+    def __init__(self) -> None:
+        self.items: list[tuple[int, int, str]] = []
+
+    def add(self, mask: np.ndarray, lines: np.ndarray, sents: np.ndarray, message) -> None:
+        rows = np.flatnonzero(mask)
+        for r in rows:
+            self.items.append((int(lines[r]), int(sents[r]), message(r) if callable(message) else message))
 
 
 class ConlluImporter:
@@ -62,40 +95,37 @@ class ConlluImporter:
         self.con = duckdb.connect()
         self.con.execute("SET python_enable_replacements = false")
         self.con.execute("SET enable_progress_bar = false")
-        self.con.execute(f"SET memory_limit = {_q(MEMORY_LIMIT)}")
-        self.con.execute(f"SET temp_directory = {_q(str(batch.stage / 'spill'))}")
-        self.tok_ord = self._scalar_from_layer(self.names["token"], "coalesce(max(ord) + 1, 0)", 0)
-        self.word_ord = self._scalar_from_layer(self.names["word"], "coalesce(max(ord) + 1, 0)", 0)
+        self.tok_ord = self._from_layer(self.names["token"], "coalesce(max(ord) + 1, 0)", 0)
+        self.word_ord = self._from_layer(self.names["word"], "coalesce(max(ord) + 1, 0)", 0)
         self.order = int(batch.store.meta("next_order") or 0)
-        self._seen_sentence_ids()
-        self._docs_with_tokens = set(self._column_from_layer(self.names["token"], "DISTINCT doc"))
+        files = self._files(self.names["sentence"])
+        self.seen_ids: dict[str, str] = {}
+        if files:
+            for (sid,) in self.con.execute("SELECT sent_id FROM read_parquet(?, union_by_name = true) "
+                                           "WHERE sent_id IS NOT NULL", [files]).fetchall():
+                self.seen_ids[sid] = "the corpus"
+        self.docs_with_tokens = {r[0] for r in self._rows(self.names["token"], "SELECT DISTINCT doc FROM {}")}
         self.known_docs = {d.name: d for d in batch.store.documents()}
-        self.n_file = 0
+        self.n_part = 0
+        self._writer = ThreadPoolExecutor(max_workers=1)
+        self._writes: list = []
         self._declare()
 
-    # -- set-up ------------------------------------------------------------------
-    def _layer_files(self, layer: str) -> list[str]:
+    # -- set-up ------------------------------------------------------------------------
+    def _files(self, layer: str) -> list[str]:
         return [str(p) for p in self.batch.store.part_paths(layer)]
 
-    def _scalar_from_layer(self, layer: str, expr: str, default):
-        files = self._layer_files(layer)
+    def _from_layer(self, layer: str, expr: str, default):
+        files = self._files(layer)
         if not files:
             return default
-        return self.con.execute(f"SELECT {expr} FROM read_parquet(?, union_by_name = true)", [files]).fetchone()[0]
+        return self.con.execute(f"SELECT {expr} FROM read_parquet(?, union_by_name = true)", [files]).fetchall()[0][0]
 
-    def _column_from_layer(self, layer: str, expr: str) -> list:
-        files = self._layer_files(layer)
+    def _rows(self, layer: str, sql: str) -> list[tuple]:
+        files = self._files(layer)
         if not files:
             return []
-        return [r[0] for r in self.con.execute(f"SELECT {expr} FROM read_parquet(?, union_by_name = true)",
-                                               [files]).fetchall()]
-
-    def _seen_sentence_ids(self) -> None:
-        self.con.execute("CREATE TABLE seen_ids (sent_id VARCHAR, src VARCHAR)")
-        files = self._layer_files(self.names["sentence"])
-        if files:
-            self.con.execute("INSERT INTO seen_ids SELECT sent_id, 'the corpus' FROM "
-                             "read_parquet(?, union_by_name = true) WHERE sent_id IS NOT NULL", [files])
+        return self.con.execute(sql.format("read_parquet(?, union_by_name = true)"), [files]).fetchall()
 
     def _declare(self) -> None:
         n = self.names
@@ -108,444 +138,530 @@ class ConlluImporter:
         self.batch.declare_layer(n["dep"], "edges", {"nodes": n["token"]})
         self.batch.declare_layer(n["enhanced"], "edges", {"nodes": n["token"]})
 
-    # -- one file ------------------------------------------------------------------
+    # -- files and blocks ----------------------------------------------------------------
     def import_file(self, path: Path) -> None:
         self.path = path
-        self.n_file += 1
         self.report.files.append(str(path))
         self.batch.add_source(str(path), sha256_of(path))
-        big = path.stat().st_size >= (4 << 20)
-        with step_progress(_STEPS, f"import {path.name}", self.opt.progress and big) as step:
-            self._read_lines(path); step()
-            self._structure(); step()
-            self._check_new_layers()
-            bad = self._validate(); step()
-            self._drop_sentences(bad); step()
-            self._documents(); step()
-            self._offsets(); step()
-            self._trees(); step()
-            self._mentions(); step()
-            self._write()
-        self.report.add("documents", self.n_docs)
+        try:
+            size = path.stat().st_size
+        except OSError as e:
+            raise StrataError(f"cannot read: {e.strerror}", file=str(path)) from None
+        with byte_progress(size, f"import {path.name}", self.opt.progress) as advance:
+            for block, first_line in _blocks(path):
+                self._block(block, first_line)
+                advance(len(block))
 
-    def _read_lines(self, path: Path) -> None:
-        """All lines with their number, kind (0 blank, 1 comment, 2 token), sentence and document counters.
+    def _block(self, data: bytes, first_line: int) -> None:
+        """Import one block of whole documents."""
+        self.first_line = first_line
+        line = self._lines(data, first_line)
+        blank = _np(pc.equal(line, ""))
+        comment = _np(pc.starts_with(line, "#"))
+        newdoc = _np(pc.starts_with(line, "# newdoc"))
+        n = np.arange(first_line, first_line + len(line), dtype=np.int64)
+        s = np.cumsum(blank, dtype=np.int64)
+        d = np.cumsum(newdoc, dtype=np.int64)
+        tok_idx = np.flatnonzero(~blank & ~comment)
+        com_idx = np.flatnonzero(comment)
+        problems = _Problems()
+        self._tokens(line.take(pa.array(tok_idx)), n[tok_idx], s[tok_idx], d[tok_idx], problems)
+        self._comments(line.take(pa.array(com_idx)), n[com_idx], s[com_idx], d[com_idx], problems)
+        self._check_new_documents()
+        self._validate(problems)
+        keep = self._drop_bad(problems)
+        if not keep:
+            return
+        self._documents()
+        self._offsets()
+        self._tree()
+        self._mentions()
+        self._write()
 
-        pyarrow's CSV reader (multi-threaded, one column, no quoting) splits the lines and
-        checks UTF-8; the counters are numpy cumulative sums.
-        """
+    def _lines(self, data: bytes, first_line: int) -> pa.Array:
         try:
             table = pa_csv.read_csv(
-                path, read_options=pa_csv.ReadOptions(column_names=["line"], block_size=1 << 24),
+                pa.BufferReader(data), read_options=pa_csv.ReadOptions(column_names=["line"], block_size=1 << 24),
                 parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
                                                   ignore_empty_lines=False, newlines_in_values=False),
                 convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False,
                                                       quoted_strings_can_be_null=False))
         except pa.ArrowInvalid as e:
-            if "UTF8" in str(e) or "utf8" in str(e).lower() or "utf-8" in str(e).lower():
-                _raise_bad_utf8(path)
-            raise StrataError(f"cannot read: {e}", file=str(path)) from None
-        except OSError as e:
-            raise StrataError(f"cannot read: {e}", file=str(path)) from None
-        line = table.column("line")
-        if table.num_rows and pc.any(pc.ends_with(line, "\r")).as_py():
+            if "utf" in str(e).lower():
+                _raise_bad_utf8(data, first_line, self.path)
+            raise StrataError(f"cannot read: {e}", file=str(self.path)) from None
+        line = table.column("line").combine_chunks()
+        if len(line) and pc.any(pc.ends_with(line, "\r")).as_py():
             line = pc.utf8_rtrim(line, characters="\r")
-        blank = pc.equal(line, "").to_numpy(zero_copy_only=False)
-        comment = pc.starts_with(line, "#").to_numpy(zero_copy_only=False)
-        newdoc = pc.starts_with(line, "# newdoc").to_numpy(zero_copy_only=False)
-        kind = np.where(blank, 0, np.where(comment, 1, 2)).astype(np.int8)
-        lines = pa.table({"n": pa.array(np.arange(1, table.num_rows + 1, dtype=np.int64)), "line": line,
-                          "k": pa.array(kind), "s": pa.array(np.cumsum(blank, dtype=np.int64)),
-                          "d": pa.array(np.cumsum(newdoc, dtype=np.int64))})
-        self.con.register("lines_arrow", lines)
-        self.con.execute("CREATE OR REPLACE TABLE lines AS SELECT * FROM lines_arrow")
-        self.con.unregister("lines_arrow")
+        return line
 
-    def _structure(self) -> None:
-        """Token rows split into the ten columns; comments parsed into key/value."""
+    # -- token rows --------------------------------------------------------------------
+    def _tokens(self, lines: pa.Array, n: np.ndarray, s: np.ndarray, d: np.ndarray, problems: _Problems) -> None:
+        parts = pc.split_pattern(lines, "\t")
+        nf = _np(pc.list_value_length(parts))
+        bad = nf != 10
+        if bad.any():
+            problems.add(bad, n, s, lambda r: f"a token line needs 10 tab-separated columns, this one has {nf[r]}")
+            good = ~bad
+            parts, n, s, d = parts.filter(pa.array(good)), n[good], s[good], d[good]
+        flat = parts.flatten()
+        m = len(n)
+        cols = {name: flat.take(pa.array(np.arange(i, 10 * m, 10, dtype=np.int64))) for i, name in enumerate(COLUMNS)}
+        self.cols, self.n, self.s, self.d = cols, n, s, d
+        cid = cols["cid"]
+        is_w = _np(pc.utf8_is_digit(cid))
+        dash = _np(pc.match_substring(cid, "-"))
+        dot = _np(pc.match_substring(cid, "."))
+        is_m = dash & ~dot & ~is_w
+        is_e = dot & ~dash & ~is_w
+        kind_bad = ~(is_w | is_m | is_e)
+        # the numbers inside IDs
+        cid_i = np.zeros(m, np.int64)
+        a = np.zeros(m, np.int64)
+        b = np.zeros(m, np.int64)
+        if is_w.any():
+            cid_i[is_w] = _np(pc.cast(cid.filter(pa.array(is_w)), pa.int64()))
+        for mask, sep in ((is_m, "-"), (is_e, ".")):
+            if mask.any():
+                pieces = pc.split_pattern(cid.filter(pa.array(mask)), sep, max_splits=1)
+                left, right = pc.list_element(pieces, 0), pc.list_element(pieces, 1)
+                ok = _np(pc.and_(pc.utf8_is_digit(left), pc.utf8_is_digit(right)))
+                rows = np.flatnonzero(mask)
+                kind_bad[rows[~ok]] = True
+                mask[rows[~ok]] = False
+                a[rows[ok]] = _np(pc.cast(left.filter(pa.array(ok)), pa.int64()))
+                b[rows[ok]] = _np(pc.cast(right.filter(pa.array(ok)), pa.int64()))
+        problems.add(kind_bad, n, s, lambda r: f"bad ID {cid[r].as_py()!r}: expected a number, a range like 3-4 or "
+                                               "an empty node like 3.1")
+        self.is_w, self.is_m, self.is_e, self.cid_i, self.a, self.b = is_w, is_m, is_e, cid_i, a, b
+        # sentence segments of token rows
+        start_flag = np.r_[True, s[1:] != s[:-1]] if m else np.zeros(0, bool)
+        self.seg_starts = np.flatnonzero(start_flag)
+        self.seg_len = np.diff(np.r_[self.seg_starts, m])
+        self.seg_id = np.cumsum(start_flag) - 1
+        self.wpos = _seg_cumsum(is_w.astype(np.int64), self.seg_starts, self.seg_len) if m else np.zeros(0, np.int64)
+        nwords_seg = np.add.reduceat(is_w.astype(np.int64), self.seg_starts) if m else np.zeros(0, np.int64)
+        self.nwords_seg = nwords_seg
+        self.nwords = np.repeat(nwords_seg, self.seg_len)
+        # heads
+        head = cols["head"]
+        self.head_blank = _np(pc.equal(head, "_"))
+        head_digit = _np(pc.utf8_is_digit(head))
+        self.head_i = np.full(m, -1, np.int64)
+        if head_digit.any():
+            self.head_i[head_digit] = _np(pc.cast(head.filter(pa.array(head_digit)), pa.int64()))
+        self.head_digit = head_digit
+
+    def _comments(self, lines: pa.Array, n: np.ndarray, s: np.ndarray, d: np.ndarray, problems: _Problems) -> None:
+        """Comment lines as a DuckDB table with key, value and whether they describe the document."""
         con = self.con
-        con.execute("""
-            CREATE OR REPLACE TABLE rows AS
-            SELECT n, s, string_split(line, chr(9)) AS f FROM lines WHERE k = 2""")
-        con.execute("""
-            CREATE OR REPLACE TABLE tok AS
-            SELECT n, s, len(f) AS nf, f[1] AS cid, f[2] AS form, f[3] AS lemma, f[4] AS upos, f[5] AS xpos,
-                   f[6] AS feats, f[7] AS head, f[8] AS deprel, f[9] AS deps, f[10] AS misc,
-                   CASE WHEN regexp_full_match(f[1], '[0-9]+') THEN 'w'
-                        WHEN regexp_full_match(f[1], '[0-9]+-[0-9]+') THEN 'm'
-                        WHEN regexp_full_match(f[1], '[0-9]+\\.[0-9]+') THEN 'e' ELSE '?' END AS kind
-            FROM rows""")
-        con.execute("DROP TABLE rows")
+        con.register("com_arrow", pa.table({"n": n, "s": s, "d": d, "line": lines}))
         con.execute("""
             CREATE OR REPLACE TABLE com AS
-            SELECT n, s, line,
-                   trim(CASE WHEN contains(line, ' = ') THEN split_part(substr(line, 2), ' = ', 1)
-                             ELSE split_part(substr(line, 2), '=', 1) END) AS key,
-                   trim(CASE WHEN contains(line, ' = ') THEN substr(line, strpos(line, ' = ') + 3)
-                             WHEN contains(line, '=') THEN substr(line, strpos(line, '=') + 1) ELSE '' END) AS value
-            FROM lines WHERE k = 1""")
-        con.execute("""
-            CREATE OR REPLACE TABLE sent AS
-            SELECT s, min(n) AS first_line, max(d) AS d,
-                   bool_or(k = 2) AS has_rows, min(n) FILTER (WHERE k = 2) AS first_row,
-                   max(n) FILTER (WHERE k = 1) AS last_comment
-            FROM lines WHERE k > 0 GROUP BY s""")
-        # word position (1-based) among the words of its sentence, and the word count
-        con.execute("""
-            CREATE OR REPLACE TABLE tok2 AS
-            SELECT t.*, count(*) FILTER (WHERE kind = 'w') OVER (PARTITION BY s ORDER BY n
-                        ROWS UNBOUNDED PRECEDING) AS wpos,
-                   count(*) FILTER (WHERE kind = 'w') OVER (PARTITION BY s) AS nwords
-            FROM tok t""")
-        con.execute("DROP TABLE tok")
-        con.execute("ALTER TABLE tok2 RENAME TO tok")
+            SELECT *, (seen_doc AND NOT ended AND NOT is_newdoc) AS doc_level FROM (
+                SELECT *, starts_with(key, 'newdoc') AS is_newdoc,
+                       bool_or(starts_with(key, 'newdoc')) OVER w AS seen_doc,
+                       bool_or(starts_with(key, 'newpar') OR key = 'sent_id') OVER w AS ended
+                FROM (SELECT n, s, d, line,
+                        trim(CASE WHEN contains(line, ' = ') THEN split_part(substr(line, 2), ' = ', 1)
+                                  ELSE split_part(substr(line, 2), '=', 1) END) AS key,
+                        trim(CASE WHEN contains(line, ' = ') THEN substr(line, strpos(line, ' = ') + 3)
+                                  WHEN contains(line, '=') THEN substr(line, strpos(line, '=') + 1) ELSE '' END) AS value
+                      FROM com_arrow)
+                WINDOW w AS (PARTITION BY s ORDER BY n ROWS UNBOUNDED PRECEDING))""")
+        con.unregister("com_arrow")
+        # comments after the first token line of their sentence, and comments with no sentence
+        first_tok = dict(zip(self.s[self.seg_starts].tolist(), self.n[self.seg_starts].tolist()))
+        for cn, cs in con.execute("SELECT n, s FROM com ORDER BY n").fetchall():
+            ft = first_tok.get(cs)
+            if ft is None:
+                problems.items.append((cn, cs, "comment lines with no token lines after them"))
+            elif cn > ft:
+                problems.items.append((cn, cs, "a comment line inside a sentence (comments go before the token lines)"))
 
-    def _check_new_layers(self) -> None:
+    def _check_new_documents(self) -> None:
         """A document that already has these layers needs --prefix: say so before anything else."""
-        if not self._docs_with_tokens:
+        if not self.docs_with_tokens:
             return
         names = self.con.execute("SELECT value, n FROM com WHERE key = 'newdoc id' ORDER BY n").fetchall()
-        if not names:
-            names = [(self.path.stem, 1)]
-        for name, line in names:
+        for name, line in names or [(self.path.stem, self.first_line)]:
             existing = self.known_docs.get(name)
-            if existing is not None and existing.doc in self._docs_with_tokens:
-                raise StrataError(f"document {name!r} already has a {self.names['token']!r} layer; "
-                                  "import a second annotation of it with --prefix NAME", file=str(self.path), line=line)
+            if existing is not None and existing.doc in self.docs_with_tokens:
+                raise StrataError(f"document {name!r} already has a {self.names['token']!r} layer; import a second "
+                                  "annotation of it with --prefix NAME", file=str(self.path), line=line)
 
-    # -- validation: every check is one query; the first failing line is reported -----
-    def _checks(self) -> list[str]:
-        hd = "TRY_CAST(head AS INTEGER)"
-        return [
-            f"SELECT n, s, 'a token line needs 10 tab-separated columns, this one has ' || nf FROM tok WHERE nf <> 10",
-            "SELECT n, s, 'bad ID ' || cid || ': expected a number, a range like 3-4 or an empty node like 3.1' "
-            "FROM tok WHERE kind = '?' AND nf = 10",
-            "SELECT n, s, 'word ID ' || cid || ' out of order: expected ' || wpos FROM tok "
-            "WHERE kind = 'w' AND nf = 10 AND CAST(cid AS BIGINT) <> wpos",
-            "SELECT n, s, 'multiword token range ' || cid || ' must start at the next word (' || (wpos + 1) || "
-            "') and span at least two words' FROM tok WHERE kind = 'm' AND nf = 10 AND "
-            "(CAST(split_part(cid, '-', 1) AS BIGINT) <> wpos + 1 OR "
-            "CAST(split_part(cid, '-', 2) AS BIGINT) <= CAST(split_part(cid, '-', 1) AS BIGINT))",
-            "SELECT n, s, 'multiword token range ' || cid || ' ends after the last word of the sentence (' || nwords || ')' "
-            "FROM tok WHERE kind = 'm' AND nf = 10 AND CAST(split_part(cid, '-', 2) AS BIGINT) > nwords",
-            "SELECT n, s, 'bad empty node ID ' || cid || ': expected ' || wpos || '.N' FROM tok "
-            "WHERE kind = 'e' AND nf = 10 AND CAST(split_part(cid, '.', 1) AS BIGINT) <> wpos",
-            f"SELECT n, s, 'HEAD ' || head || ' is not a number' FROM tok WHERE kind = 'w' AND nf = 10 "
-            f"AND head <> '_' AND NOT regexp_full_match(head, '[0-9]+')",
-            f"SELECT n, s, 'HEAD ' || head || ' is out of range: the sentence has ' || nwords || ' words' FROM tok "
-            f"WHERE kind = 'w' AND nf = 10 AND {hd} > nwords",
-            f"SELECT n, s, 'word ' || cid || ' is its own head' FROM tok WHERE kind = 'w' AND nf = 10 "
-            f"AND {hd} = TRY_CAST(cid AS INTEGER)",
-            "SELECT min(n) FILTER (WHERE head = '_'), s, 'HEAD is ''_'' here but given for other words of the sentence' "
-            "FROM tok WHERE kind = 'w' AND nf = 10 GROUP BY s "
-            "HAVING bool_or(head = '_') AND bool_or(head <> '_')",
-            f"SELECT coalesce(arg_min(n, n) FILTER (WHERE {hd} = 0 AND rn > 1), min(n)), s, "
-            "CASE WHEN count(*) FILTER (WHERE " + hd + " = 0) = 0 THEN "
-            "'the dependency tree has no root (no word with HEAD 0): there is a cycle' ELSE "
-            "'the dependency tree has ' || count(*) FILTER (WHERE " + hd + " = 0) || "
-            "' roots (words with HEAD 0); a sentence has exactly one' END "
-            f"FROM (SELECT *, row_number() OVER (PARTITION BY s, {hd} = 0 ORDER BY n) AS rn FROM tok "
-            f"WHERE kind = 'w' AND nf = 10) GROUP BY s HAVING bool_and(head <> '_') AND "
-            f"count(*) FILTER (WHERE {hd} = 0) <> 1",
-            "SELECT c.n, c.s, 'a comment line inside a sentence (comments go before the token lines)' "
-            "FROM com c JOIN sent USING (s) WHERE c.n > sent.first_row",
-            "SELECT last_comment, s, 'comment lines with no token lines after them' FROM sent WHERE NOT has_rows",
-        ]
+    # -- checks ----------------------------------------------------------------------------
+    def _validate(self, problems: _Problems) -> None:
+        n, s, cid = self.n, self.s, self.cols["cid"]
+        w, mw, e = self.is_w, self.is_m, self.is_e
+        wpos, nwords, a, b = self.wpos, self.nwords, self.a, self.b
+        problems.add(w & (self.cid_i != wpos), n, s,
+                     lambda r: f"word ID {self.cid_i[r]} out of order: expected {wpos[r]}")
+        problems.add(mw & ((a != wpos + 1) | (b <= a)), n, s,
+                     lambda r: f"multiword token range {cid[r].as_py()} must start at the next word ({wpos[r] + 1}) "
+                               "and span at least two words")
+        problems.add(mw & (b > nwords), n, s,
+                     lambda r: f"multiword token range {cid[r].as_py()} ends after the last word of the sentence "
+                               f"({nwords[r]})")
+        prev_last = _seg_running_max(np.where(mw, b, -1), self.seg_id)
+        prev_last = np.r_[-1, prev_last[:-1]]
+        same_seg = np.r_[False, self.seg_id[1:] == self.seg_id[:-1]]
+        problems.add(mw & same_seg & (a <= prev_last) & (a == wpos + 1), n, s,
+                     lambda r: f"multiword token range {cid[r].as_py()} overlaps the previous one")
+        problems.add(e & (a != wpos), n, s, lambda r: f"bad empty node ID {cid[r].as_py()}: expected {wpos[r]}.N")
+        head = self.cols["head"]
+        hd = self.head_i
+        problems.add(w & ~self.head_blank & ~self.head_digit, n, s,
+                     lambda r: f"HEAD {head[r].as_py()!r} is not a number")
+        problems.add(w & (hd > nwords), n, s,
+                     lambda r: f"HEAD {hd[r]} is out of range: the sentence has {nwords[r]} words")
+        problems.add(w & (hd == self.cid_i), n, s, lambda r: f"word {self.cid_i[r]} is its own head")
+        starts, lens = self.seg_starts, self.seg_len
+        if len(starts):
+            blanks = np.add.reduceat((w & self.head_blank).astype(np.int64), starts)
+            mixed = (blanks > 0) & (blanks < self.nwords_seg)
+            first_blank = w & self.head_blank & np.repeat(mixed, lens)
+            fb_rows = np.flatnonzero(first_blank)
+            if len(fb_rows):
+                firsts = fb_rows[np.r_[True, self.seg_id[fb_rows][1:] != self.seg_id[fb_rows][:-1]]]
+                m = np.zeros(len(n), bool)
+                m[firsts] = True
+                problems.add(m, n, s, "HEAD is '_' here but given for other words of the sentence")
+            roots = np.add.reduceat((w & (hd == 0)).astype(np.int64), starts)
+            full = blanks == 0
+            no_root = full & (roots == 0) & (self.nwords_seg > 0)
+            m = np.zeros(len(n), bool)
+            m[starts[no_root]] = True
+            problems.add(m, n, s, "the dependency tree has no root (no word with HEAD 0): there is a cycle")
+            many = full & (roots > 1)
+            if many.any():
+                root_rows = np.flatnonzero(w & (hd == 0) & np.repeat(many, lens))
+                second = root_rows[np.r_[False, self.seg_id[root_rows][1:] == self.seg_id[root_rows][:-1]]]
+                m = np.zeros(len(n), bool)
+                m[second] = True
+                problems.add(m, n, s, lambda r: f"the dependency tree has {roots[self.seg_id[r]]} roots (words with "
+                                                "HEAD 0); a sentence has exactly one")
+            self.tree_seg = full & (self.nwords_seg > 0)
+        else:
+            self.tree_seg = np.zeros(0, bool)
+        self._validate_deps(problems)
+        self._validate_sentence_ids(problems)
+        self._validate_cycles(problems)
 
-    def _validate(self) -> set[int]:
-        """Bad sentences by number; without --lenient the first bad line is an error."""
-        con = self.con
-        problems = con.execute(" UNION ALL ".join(f"({q})" for q in self._checks()) + " ORDER BY 1").fetchall()
-        # DEPS heads must be words or empty nodes of the sentence
-        con.execute("""
-            CREATE OR REPLACE TABLE deps AS
-            SELECT n, s, cid, item, split_part(item, ':', 1) AS h,
-                   substr(item, strpos(item, ':') + 1) AS rel, contains(item, ':') AS ok
-            FROM (SELECT n, s, cid, unnest(string_split(deps, '|')) AS item FROM tok
-                  WHERE kind IN ('w', 'e') AND nf = 10 AND deps <> '_')""")
-        problems += con.execute("""
-            SELECT d.n, d.s, 'DEPS item ' || d.item || ': the head must be a word or empty node of this sentence, '
-                   || 'followed by '':'' and a relation'
-            FROM deps d LEFT JOIN tok t ON t.s = d.s AND t.cid = d.h AND t.kind IN ('w', 'e')
-            WHERE NOT d.ok OR (d.h <> '0' AND t.n IS NULL)""").fetchall()
-        # sentence ids: unique in this import and against the corpus
-        con.execute("""
-            CREATE OR REPLACE TABLE sid AS
-            SELECT s, min(n) AS n, last(value ORDER BY n) AS sent_id FROM com WHERE key = 'sent_id' GROUP BY s""")
-        problems += con.execute("""
-            SELECT n, s, 'sentence id ' || sent_id || ' is used twice' FROM (
-                SELECT *, row_number() OVER (PARTITION BY sent_id ORDER BY n) AS k FROM sid) WHERE k > 1
-            UNION ALL
-            SELECT sid.n, sid.s, 'sentence id ' || sid.sent_id || ' is already in ' || seen_ids.src
-            FROM sid JOIN seen_ids USING (sent_id)""").fetchall()
-        # cycles: checked here so that --lenient can drop the sentence
-        problems += self._cycle_problems({p[1] for p in problems})
-        if not problems:
-            return set()
-        problems.sort(key=lambda p: (p[0] is None, p[0]))
-        if not self.opt.lenient:
-            line, _, message = problems[0]
-            raise StrataError(message, file=str(self.path), line=line)
-        bad: dict[int, tuple] = {}
-        for line, s, message in problems:
-            bad.setdefault(s, (line, message))
-        for s, (line, message) in sorted(bad.items(), key=lambda kv: kv[1][0] or 0):
-            self.report.skipped.append(f"{self.path}:{line}: {message}")
-        return set(bad)
+    def _validate_deps(self, problems: _Problems) -> None:
+        deps = self.cols["deps"]
+        has = _np(pc.not_equal(deps, "_")) & (self.is_w | self.is_e)
+        self.deps_rows = np.flatnonzero(has)
+        if not len(self.deps_rows):
+            self.deps_items = None
+            return
+        items = pc.split_pattern(deps.take(pa.array(self.deps_rows)), "|")
+        parent = self.deps_rows[_np(pc.list_parent_indices(items))]
+        flat = items.flatten()
+        ok_colon = _np(pc.match_substring(flat, ":"))
+        padded = pc.if_else(pa.array(ok_colon), flat, pc.binary_join_element_wise(flat, pa.scalar(":"), ""))
+        hr = pc.split_pattern(padded, ":", max_splits=1)
+        h = pc.list_element(hr, 0)
+        rel = pc.list_element(hr, 1)
+        h_digit = _np(pc.utf8_is_digit(h))
+        h_int = np.full(len(flat), -1, np.int64)
+        if h_digit.any():
+            h_int[h_digit] = _np(pc.cast(h.filter(pa.array(h_digit)), pa.int64()))
+        ok_word = h_digit & (h_int <= self.nwords[parent])
+        empties = {(int(self.s[r]), self.cols["cid"][int(r)].as_py()) for r in np.flatnonzero(self.is_e)}
+        ok = ok_colon & ok_word
+        for k in np.flatnonzero(ok_colon & ~h_digit):
+            if (int(self.s[parent[k]]), h[int(k)].as_py()) in empties:
+                ok[k] = True
+        bad = ~ok
+        if bad.any():
+            lines, sents = self.n[parent], self.s[parent]
+            problems.add(bad, lines, sents, lambda k: f"DEPS item {flat[int(k)].as_py()!r}: the head must be a word or "
+                                                      "empty node of this sentence, followed by ':' and a relation")
+        self.deps_items = (parent, h, h_digit, h_int, rel)
 
-    def _cycle_problems(self, flagged: set[int]) -> list[tuple]:
-        """Sentences on which every other check passed, and whose tree still has a cycle."""
-        self.con.execute("CREATE OR REPLACE TABLE flagged (s BIGINT)")
-        if flagged:
-            self.con.execute("INSERT INTO flagged SELECT unnest(?)", [sorted(x for x in flagged if x is not None)])
-        rows = self.con.sql("""
-            SELECT s, n, TRY_CAST(head AS INTEGER) FROM tok
-            WHERE kind = 'w' AND s NOT IN (SELECT s FROM flagged) AND s IN (
-                SELECT s FROM tok WHERE kind = 'w' AND nf = 10 GROUP BY s
-                HAVING bool_and(regexp_full_match(head, '[0-9]+') AND TRY_CAST(head AS INTEGER) <= nwords
-                                AND TRY_CAST(head AS INTEGER) <> TRY_CAST(cid AS INTEGER))
-                   AND count(*) FILTER (WHERE head = '0') = 1
-                   AND bool_and(CAST(cid AS BIGINT) = wpos))
-            ORDER BY n""").to_arrow_table()
-        if rows.num_rows == 0:
-            return []
-        s = rows.column(0).to_numpy()
-        heads = rows.column(2).to_numpy()
-        starts = np.flatnonzero(np.r_[True, s[1:] != s[:-1]])
+    def _validate_sentence_ids(self, problems: _Problems) -> None:
+        rows = self.con.execute("SELECT s, min(n), last(value ORDER BY n) FROM com WHERE key = 'sent_id' "
+                                "GROUP BY s ORDER BY min(n)").fetchall()
+        self.sent_ids = {}
+        for s, line, sid in rows:
+            where = self.seen_ids.get(sid)
+            if where is not None:
+                problems.items.append((line, s, f"sentence id {sid!r} is used twice" if where == "this import"
+                                       else f"sentence id {sid!r} is already in {where}"))
+            else:
+                self.seen_ids[sid] = "this import"
+            self.sent_ids[s] = sid
+
+    def _validate_cycles(self, problems: _Problems) -> None:
+        """Trees of sentences that passed the other checks must reach every word from the root."""
+        flagged = {p[1] for p in problems.items}
+        seg_ok = self.tree_seg & ~np.isin(self.s[self.seg_starts], list(flagged))
+        rows = np.flatnonzero(np.repeat(seg_ok, self.seg_len) & self.is_w)
+        self.tree_rows = rows
+        if not len(rows):
+            return
+        sub_s = self.s[rows]
+        sub_starts = np.flatnonzero(np.r_[True, sub_s[1:] != sub_s[:-1]])
         try:
-            tree_order(heads, starts)
-        except TreeError as e:
-            lines = rows.column(1).to_numpy()
-            out = [(int(lines[i]), int(s[i]), "word " + str(int(i - starts[np.searchsorted(starts, i, 'right') - 1] + 1))
-                    + " is on a dependency cycle (it cannot be reached from the root)") for i in e.nodes]
-            # keep one problem per sentence, the first line
-            seen, first = set(), []
-            for p in sorted(out):
-                if p[1] not in seen:
-                    seen.add(p[1])
-                    first.append(p)
-            return first
-        return []
+            self.tree_result = tree_order(self.head_i[rows], sub_starts)
+        except TreeError as err:
+            bad_rows = rows[err.nodes]
+            seen = set()
+            for r in bad_rows:
+                sent = int(self.s[r])
+                if sent not in seen:
+                    seen.add(sent)
+                    problems.items.append((int(self.n[r]), sent, f"word {self.cid_i[r]} is on a dependency cycle "
+                                                                 "(it cannot be reached from the root)"))
+            self.tree_result = None
 
-    def _drop_sentences(self, bad: set[int]) -> None:
-        self.con.execute("CREATE OR REPLACE TABLE bad (s BIGINT)")
-        if bad:
-            self.con.execute("INSERT INTO bad SELECT unnest(?)", [sorted(bad)])
-            for t in ("tok", "com", "sent", "sid", "deps"):
-                self.con.execute(f"DELETE FROM {t} WHERE s IN (SELECT s FROM bad)")
-        self.con.execute("DELETE FROM sent WHERE NOT has_rows")
+    def _drop_bad(self, problems: _Problems) -> bool:
+        """Without --lenient the first problem is an error; with it, bad sentences are skipped."""
+        if problems.items:
+            problems.items.sort()
+            if not self.opt.lenient:
+                line, _, message = problems.items[0]
+                raise StrataError(message, file=str(self.path), line=line)
+            bad: dict[int, tuple[int, str]] = {}
+            for line, s, message in problems.items:
+                bad.setdefault(s, (line, message))
+            for line, message in sorted(bad.values()):
+                self.report.skipped.append(f"{self.path}:{line}: {message}")
+            keep = ~np.isin(self.s, list(bad))
+            self._filter_rows(keep)
+            self.con.execute("DELETE FROM com WHERE s IN (SELECT unnest(?))", [sorted(bad)])
+            self._validate_cycles(_Problems())
+        return len(self.n) > 0
 
-    # -- documents, text, offsets ------------------------------------------------------
+    def _filter_rows(self, keep: np.ndarray) -> None:
+        km = pa.array(keep)
+        self.cols = {k: v.filter(km) for k, v in self.cols.items()}
+        for name in ("n", "s", "d", "is_w", "is_m", "is_e", "cid_i", "a", "b", "head_i", "head_blank", "head_digit"):
+            setattr(self, name, getattr(self, name)[keep])
+        m = len(self.n)
+        start_flag = np.r_[True, self.s[1:] != self.s[:-1]] if m else np.zeros(0, bool)
+        self.seg_starts = np.flatnonzero(start_flag)
+        self.seg_len = np.diff(np.r_[self.seg_starts, m])
+        self.seg_id = np.cumsum(start_flag) - 1
+        self.wpos = _seg_cumsum(self.is_w.astype(np.int64), self.seg_starts, self.seg_len) if m else self.cid_i
+        self.nwords_seg = np.add.reduceat(self.is_w.astype(np.int64), self.seg_starts) if m else self.cid_i
+        self.nwords = np.repeat(self.nwords_seg, self.seg_len)
+        self.tree_seg = (np.add.reduceat((self.is_w & self.head_blank).astype(np.int64), self.seg_starts) == 0
+                         ) if m else np.zeros(0, bool)
+        if self.deps_items is not None:
+            self._validate_deps(_Problems())
+
+    # -- documents and offsets -----------------------------------------------------------
     def _documents(self) -> None:
         con = self.con
-        # doc-level comments: after "# newdoc" up to the first newpar/sent_id of that block
-        con.execute("""
-            CREATE OR REPLACE TABLE com2 AS
-            SELECT *, (seen_doc AND NOT ended AND NOT is_newdoc) AS doc_level FROM (
-                SELECT c.*, starts_with(c.key, 'newdoc') AS is_newdoc,
-                       bool_or(starts_with(c.key, 'newdoc')) OVER w AS seen_doc,
-                       bool_or(starts_with(c.key, 'newpar') OR c.key = 'sent_id') OVER w AS ended
-                FROM com c WINDOW w AS (PARTITION BY s ORDER BY n ROWS UNBOUNDED PRECEDING))""")
-        con.execute("DROP TABLE com")
-        con.execute("ALTER TABLE com2 RENAME TO com")
-        docs = con.execute("""
-            SELECT sent.d, min(sent.s), min(sent.first_line),
-                   (SELECT last(c.value ORDER BY c.n) FROM com c JOIN sent s2 USING (s)
-                    WHERE s2.d = sent.d AND c.key = 'newdoc id') AS name
-            FROM sent GROUP BY sent.d ORDER BY sent.d""").fetchall()
-        attrs = con.execute("""
-            SELECT sent.d, c.key, c.value FROM com c JOIN sent USING (s) WHERE c.doc_level ORDER BY c.n""").fetchall()
-        by_doc: dict[int, dict[str, str]] = {}
-        for d, key, value in attrs:
-            by_doc.setdefault(d, {})[key[len("meta::"):] if key.startswith("meta::") else key] = value
-        self.doc_rows = []
-        self.n_docs = 0
-        for d, first_s, first_line, name in docs:
+        names = dict(con.execute("SELECT d, last(value ORDER BY n) FROM com WHERE key = 'newdoc id' GROUP BY d"
+                                 ).fetchall())
+        attrs: dict[int, dict[str, str]] = {}
+        for d, key, value in con.execute("SELECT d, key, value FROM com WHERE doc_level ORDER BY n").fetchall():
+            attrs.setdefault(d, {})[key[len("meta::"):] if key.startswith("meta::") else key] = value
+        self.doc_list = []
+        doc_starts = np.flatnonzero(np.r_[True, self.d[1:] != self.d[:-1]])
+        for r in doc_starts:
+            d = int(self.d[r])
+            name = names.get(d)
             if name is None:
-                name = self.path.stem if d == 0 else f"{self.path.stem}-{first_line}"
-            self.doc_rows.append((d, name, first_line, by_doc.get(d, {})))
-        con.execute("CREATE OR REPLACE TABLE dmap (d BIGINT, name VARCHAR, first_line BIGINT)")
-        con.executemany("INSERT INTO dmap VALUES (?, ?, ?)", [r[:3] for r in self.doc_rows])
+                name = self.path.stem if d == 0 else f"{self.path.stem}-{int(self.n[r])}"
+            self.doc_list.append((d, name, int(self.n[r]), attrs.get(d, {})))
 
     def _offsets(self) -> None:
-        con = self.con
-        # words inside a multiword token: the last range seen in the sentence covers them
-        con.execute("""
-            CREATE OR REPLACE TABLE tk AS
-            SELECT t.*, sent.d,
-                   CASE WHEN kind = 'm' THEN CAST(split_part(cid, '-', 1) AS BIGINT) END AS m_first,
-                   CASE WHEN kind = 'm' THEN CAST(split_part(cid, '-', 2) AS BIGINT) END AS m_last
-            FROM tok t JOIN sent USING (s)""")
-        con.execute("""
-            CREATE OR REPLACE TABLE tk2 AS
-            SELECT *, CASE WHEN kind = 'w' AND cid_i <= cur_last THEN cur_first END AS in_mwt
-            FROM (SELECT *, TRY_CAST(cid AS BIGINT) AS cid_i,
-                         max(m_last) OVER w AS cur_last, max(m_first) OVER w AS cur_first
-                  FROM tk WINDOW w AS (PARTITION BY s ORDER BY n ROWS UNBOUNDED PRECEDING))""")
-        con.execute("DROP TABLE tk")
-        # surface units: multiword tokens and words outside them, with their separators
-        con.execute("""
-            CREATE OR REPLACE TABLE unit AS
-            SELECT *, length(form) + 1 - (CASE WHEN last_in_sent THEN 0 WHEN no_space THEN 1 ELSE 0 END) AS width,
-                   CASE WHEN last_in_sent THEN chr(10) WHEN no_space THEN '' ELSE ' ' END AS sep
-            FROM (SELECT n, s, d, cid, form, misc, kind, m_first, m_last,
-                         regexp_matches(misc, '(^|\\|)SpaceAfter=No(\\||$)') AS no_space,
-                         n = max(n) OVER (PARTITION BY s) AS last_in_sent
-                  FROM tk2 WHERE kind = 'm' OR (kind = 'w' AND in_mwt IS NULL))""")
-        con.execute("""
-            CREATE OR REPLACE TABLE unit2 AS
-            SELECT *, sum(width) OVER (PARTITION BY d ORDER BY n ROWS UNBOUNDED PRECEDING) - width AS lstart,
-                   row_number() OVER (ORDER BY n) - 1 AS uidx
-            FROM unit""")
-        con.execute("DROP TABLE unit")
-        # document texts, then bases in the global coordinate line
-        texts = con.execute("""
-            SELECT d, string_agg(form || sep, '' ORDER BY n) FROM unit2 GROUP BY d ORDER BY d""").fetchall()
-        bases = []
-        for (d, name, first_line, attrs), (d2, text) in zip(self.doc_rows, texts):
-            text = text[:-1] if text.endswith("\n") else text
+        w, mw = self.is_w, self.is_m
+        m = len(self.n)
+        cur_last = _seg_running_max(np.where(mw, self.b, -1), self.seg_id)
+        in_mwt = w & (cur_last >= 0) & (self.cid_i <= cur_last)
+        unit = mw | (w & ~in_mwt)
+        u_rows = np.flatnonzero(unit)
+        self.u_rows = u_rows
+        form = self.cols["form"]
+        flen = _np(pc.utf8_length(form)).astype(np.int64)
+        self.flen = flen
+        misc = self.cols["misc"]
+        u_misc = misc.take(pa.array(u_rows))
+        no_space = _np(pc.match_substring_regex(u_misc, r"(^|\|)SpaceAfter=No(\||$)"))
+        u_seg = self.seg_id[u_rows]
+        last = np.r_[u_seg[1:] != u_seg[:-1], True] if len(u_rows) else np.zeros(0, bool)
+        ulen = flen[u_rows]
+        width = ulen + 1 - (no_space & ~last)
+        u_doc = self.d[u_rows]
+        doc_first = np.flatnonzero(np.r_[True, u_doc[1:] != u_doc[:-1]])
+        doc_len = np.diff(np.r_[doc_first, len(u_rows)])
+        lstart = _seg_cumsum(width, doc_first, doc_len) - width
+        # document texts from one joined Arrow array
+        sep = np.where(last, "\n", np.where(no_space, "", " "))
+        joined = pc.binary_join_element_wise(form.take(pa.array(u_rows)), pa.array(sep), "")
+        offsets = np.frombuffer(joined.buffers()[1], dtype=np.int32)[joined.offset:joined.offset + len(joined) + 1]
+        data = joined.buffers()[2]
+        texts = []
+        for k, f0 in enumerate(doc_first):
+            f1 = f0 + doc_len[k]
+            text = data[int(offsets[f0]):int(offsets[f1])].to_pybytes().decode("utf-8")
+            texts.append(text[:-1] if text.endswith("\n") else text)
+        self._register_documents(texts)
+        base_u = self.doc_base[np.searchsorted(self.doc_d, u_doc)]
+        doc_u = self.doc_num[np.searchsorted(self.doc_d, u_doc)]
+        # unit index of every row: its own for units, its multiword token's for the words inside
+        uidx = np.full(m, -1, np.int64)
+        uidx[u_rows] = np.arange(len(u_rows))
+        m_uidx = np.maximum.accumulate(np.where(mw, uidx, -1)) if m else uidx
+        row_u = np.where(in_mwt, m_uidx, uidx)
+        # syntactic words
+        w_rows = np.flatnonzero(w)
+        wu = row_u[w_rows]
+        w_in = in_mwt[w_rows]
+        wlen = flen[w_rows]
+        # parts of one multiword token tile it: each takes its length, the last the rest
+        grp_start = np.flatnonzero(np.r_[True, wu[1:] != wu[:-1]]) if len(w_rows) else np.zeros(0, np.int64)
+        grp_len = np.diff(np.r_[grp_start, len(w_rows)])
+        part_end = _seg_cumsum(wlen, grp_start, grp_len) if len(w_rows) else wlen
+        last_part = np.zeros(len(w_rows), bool)
+        last_part[grp_start + grp_len - 1] = True
+        us, ul = lstart[wu], ulen[wu]
+        w_start = np.where(w_in, us + np.minimum(part_end - wlen, ul), us)
+        w_end = np.where(w_in & ~last_part, us + np.minimum(part_end, ul), us + ul)
+        n_tok, n_unit = len(w_rows), len(u_rows)
+        tok_ord = self.tok_ord + np.arange(n_tok, dtype=np.int64)
+        word_ord = self.word_ord + np.arange(n_unit, dtype=np.int64)
+        n_sent = len(self.seg_starts)
+        n_empty = int(self.is_e.sum())
+        self.id_sent = self.batch.alloc_ids(n_sent)
+        self.id_tok = self.batch.alloc_ids(n_tok)
+        self.id_word = self.batch.alloc_ids(n_unit)
+        self.id_empty = self.batch.alloc_ids(n_empty)
+        self.tok_ord += n_tok
+        self.word_ord += n_unit
+        base_w = base_u[wu]
+        self.W = dict(rows=w_rows, start=base_w + w_start, end=base_w + w_end, doc=doc_u[wu], ord=tok_ord,
+                      word=word_ord[wu], sent=self.id_sent + self.seg_id[w_rows], seg=self.seg_id[w_rows])
+        # surface words: their syntactic words' ordinal range
+        tok_first = np.zeros(n_unit, np.int64)
+        tok_last = np.zeros(n_unit, np.int64)
+        tok_first[wu[grp_start]] = tok_ord[grp_start]
+        tok_last[wu[grp_start + grp_len - 1]] = tok_ord[grp_start + grp_len - 1]
+        self.U = dict(rows=u_rows, start=base_u + lstart, end=base_u + lstart + ulen, doc=doc_u, ord=word_ord,
+                      tok_first=tok_first, tok_last=tok_last, sent=self.id_sent + u_seg, is_mwt=mw[u_rows])
+        # empty nodes: zero width after the word they follow (the sentence start after word 0)
+        e_rows = np.flatnonzero(self.is_e)
+        widx_row = np.full(m, -1, np.int64)
+        widx_row[w_rows] = np.arange(n_tok)
+        last_w = np.maximum.accumulate(np.where(w, widx_row, -1)) if m else widx_row
+        e_seg = self.seg_id[e_rows]
+        seg_first_w = np.searchsorted(self.W["seg"], e_seg)        # first word of the sentence
+        after = last_w[e_rows]
+        follows = (self.a[e_rows] > 0) & (after >= 0)
+        point = np.where(follows, self.W["end"][np.maximum(after, 0)], self.W["start"][np.minimum(seg_first_w, n_tok - 1)])
+        self.E = dict(rows=e_rows, start=point, end=point, doc=self.doc_num[np.searchsorted(self.doc_d, self.d[e_rows])],
+                      sent=self.id_sent + e_seg)
+        # sentences
+        seg_w_first = np.searchsorted(self.W["seg"], np.arange(n_sent))
+        seg_w_last = np.searchsorted(self.W["seg"], np.arange(n_sent), side="right") - 1
+        seg_u_first = np.searchsorted(u_seg, np.arange(n_sent))
+        seg_u_last = np.searchsorted(u_seg, np.arange(n_sent), side="right") - 1
+        self.S = dict(id=self.id_sent + np.arange(n_sent), doc=doc_u[seg_u_first], start=self.U["start"][seg_u_first],
+                      end=self.U["end"][seg_u_last], tok_first=tok_ord[seg_w_first], tok_last=tok_ord[seg_w_last],
+                      word_first=word_ord[seg_u_first], word_last=word_ord[seg_u_last],
+                      s=self.s[self.seg_starts], line=self.n[self.seg_starts])
+        self.widx_row = widx_row
+
+    def _register_documents(self, texts: list[str]) -> None:
+        nums, bases, ds = [], [], []
+        for (d, name, first_line, attrs), text in zip(self.doc_list, texts):
             existing = self.known_docs.get(name)
             if existing is None:
                 info = self.batch.add_document(name, text, attrs)
                 self.known_docs[name] = info
             else:
                 if existing.text != text:
-                    at = next((i for i, (a, b) in enumerate(zip(existing.text, text)) if a != b),
+                    at = next((i for i, (x, y) in enumerate(zip(existing.text, text)) if x != y),
                               min(len(existing.text), len(text)))
                     raise StrataError(
                         f"document {name!r} is already in the corpus with a different text (first difference at "
-                        f"character {at}: {existing.text[at:at + 20]!r} vs {text[at:at + 20]!r}); layers of the "
-                        "same document must share its primary text", file=str(self.path), line=first_line)
+                        f"character {at}: {existing.text[at:at + 20]!r} vs {text[at:at + 20]!r}); layers of the same "
+                        "document must share its primary text", file=str(self.path), line=first_line)
                 info = existing
-            bases.append((d, info.doc, info.base))
-            self.n_docs += 1
-        con.execute("CREATE OR REPLACE TABLE dbase (d BIGINT, doc INTEGER, base BIGINT)")
-        con.executemany("INSERT INTO dbase VALUES (?, ?, ?)", bases)
-        # ids: sentences, tokens, words, empty nodes each get a consecutive block
-        n_sent = con.execute("SELECT count(*) FROM sent").fetchone()[0]
-        n_tok = con.execute("SELECT count(*) FROM tk2 WHERE kind = 'w'").fetchone()[0]
-        n_unit = con.execute("SELECT count(*) FROM unit2").fetchone()[0]
-        n_empty = con.execute("SELECT count(*) FROM tk2 WHERE kind = 'e'").fetchone()[0]
-        self.ids = {"sent": self.batch.alloc_ids(n_sent), "tok": self.batch.alloc_ids(n_tok),
-                    "word": self.batch.alloc_ids(n_unit), "empty": self.batch.alloc_ids(n_empty)}
-        self.counts = {"sent": n_sent, "tok": n_tok, "unit": n_unit, "empty": n_empty}
-        con.execute(f"""
-            CREATE OR REPLACE TABLE sent2 AS
-            SELECT sent.*, {self.ids['sent']} + row_number() OVER (ORDER BY s) - 1 AS sid FROM sent""")
-        con.execute(f"""
-            UPDATE unit2 SET uidx = uidx + {self.word_ord}""")
-        # syntactic words: outside a multiword token they are their unit; inside, they tile it
-        con.execute(f"""
-            CREATE OR REPLACE TABLE w AS
-            WITH words AS (
-                SELECT t.*, row_number() OVER (ORDER BY t.n) - 1 AS widx,
-                       sum(length(t.form)) OVER (PARTITION BY t.s, t.in_mwt ORDER BY t.n ROWS UNBOUNDED PRECEDING)
-                           AS part_end,
-                       t.cid_i = max(t.cid_i) OVER (PARTITION BY t.s, t.in_mwt) AS last_part
-                FROM tk2 t WHERE t.kind = 'w')
-            SELECT words.*, u.uidx, u.lstart AS ustart, length(u.form) AS ulen,
-                   CASE WHEN words.in_mwt IS NULL THEN u.lstart
-                        ELSE u.lstart + least(words.part_end - length(words.form), length(u.form)) END AS lstart,
-                   CASE WHEN words.in_mwt IS NULL OR words.last_part THEN u.lstart + length(u.form)
-                        ELSE u.lstart + least(words.part_end, length(u.form)) END AS lend
-            FROM words JOIN unit2 u ON u.s = words.s
-                AND (CASE WHEN u.kind = 'm' THEN u.m_first ELSE -u.n END)
-                  = (CASE WHEN words.in_mwt IS NULL THEN -words.n ELSE words.in_mwt END)""")
-        con.execute(f"UPDATE w SET widx = widx + {self.tok_ord}")
-        self.tok_ord += n_tok
-        self.word_ord += n_unit
+            nums.append(info.doc)
+            bases.append(info.base)
+            ds.append(d)
+        self.doc_d = np.array(ds, np.int64)
+        self.doc_num = np.array(nums, np.int64)
+        self.doc_base = np.array(bases, np.int64)
+        self.report.add("documents", len(ds))
 
-    # -- trees ---------------------------------------------------------------------------
-    def _trees(self) -> None:
-        con = self.con
-        rows = con.sql("""
-            SELECT s, TRY_CAST(head AS INTEGER) AS h FROM w ORDER BY n""").to_arrow_table()
-        s = rows.column(0).to_numpy()
-        heads = rows.column(1).to_numpy(zero_copy_only=False)
-        n = len(s)
-        if n == 0:
-            self.tree = pa.table({"widx": pa.array([], pa.int64())})
-            return
-        starts = np.flatnonzero(np.r_[True, s[1:] != s[:-1]])
-        has_tree = ~np.isnan(heads.astype(float)) if heads.dtype.kind == "f" else np.ones(n, bool)
-        h = np.where(has_tree, np.nan_to_num(heads.astype(float), nan=-1), -1).astype(np.int64)
-        sent_has = np.zeros(n, bool)
-        # sentences where every HEAD is given get a tree; others ('_' everywhere) get none
-        seg = np.add.reduceat(has_tree.astype(np.int64), starts)
-        full = seg == np.diff(np.r_[starts, n])
-        sent_has[np.repeat(full, np.diff(np.r_[starts, n]))] = True
-        idx = np.flatnonzero(sent_has)
-        pre = np.full(n, -1, np.int64)
-        post = np.full(n, -1, np.int64)
-        depth = np.full(n, -1, np.int64)
-        parent = np.full(n, -1, np.int64)
-        if len(idx):
-            sub_heads = h[idx]
-            sub_s = s[idx]
-            sub_starts = np.flatnonzero(np.r_[True, sub_s[1:] != sub_s[:-1]])
-            order = tree_order(sub_heads, sub_starts)
-            pre[idx] = order.entry + self.order
-            post[idx] = order.exit + self.order
-            depth[idx] = order.depth
-            gpar = order.parent
-            parent[idx] = np.where(gpar >= 0, idx[np.maximum(gpar, 0)], -1)
-            self.order += 2 * len(idx)
-        self.tree = pa.table({
-            "row": pa.array(np.arange(n)),
-            "pre": pa.array(pre, mask=pre < 0), "post": pa.array(post, mask=post < 0),
-            "depth": pa.array(depth, mask=depth < 0), "parent_row": pa.array(parent, mask=parent < 0)})
-        con.register("tree_arrow", self.tree)
-        con.execute("CREATE OR REPLACE TABLE tree AS SELECT * FROM tree_arrow")
-        con.unregister("tree_arrow")
+    # -- trees -----------------------------------------------------------------------------
+    def _tree(self) -> None:
+        n_tok = len(self.W["rows"])
+        pre = np.full(n_tok, -1, np.int64)
+        post = pre.copy()
+        depth = pre.copy()
+        parent = pre.copy()
+        rows = self.tree_rows
+        if len(rows) and self.tree_result is not None:
+            res = self.tree_result
+            widx = self.widx_row[rows]
+            pre[widx] = res.entry + self.order
+            post[widx] = res.exit + self.order
+            depth[widx] = res.depth
+            parent[widx] = np.where(res.parent >= 0, self.id_tok + widx[np.maximum(res.parent, 0)], -1)
+            self.order += 2 * len(rows)
+        self.T = dict(pre=pre, post=post, depth=depth, parent=parent)
 
-    # -- mentions ------------------------------------------------------------------------
+    # -- mentions --------------------------------------------------------------------------
     def _mentions(self) -> None:
         con = self.con
+        w_rows = self.W["rows"]
+        misc = self.cols["misc"].take(pa.array(w_rows))
+        has = _np(pc.match_substring(misc, "Entity="))
+        k = np.flatnonzero(has)
+        value = pc.extract_regex(misc.filter(pa.array(has)), r"(?:^|\|)Entity=(?P<v>[^|]*)")
+        con.register("ent_arrow", pa.table({
+            "n": self.n[w_rows[k]], "s": self.s[w_rows[k]], "d": self.d[w_rows[k]], "widx": k.astype(np.int64),
+            "value": pc.struct_field(value, [0])}))
         con.execute(f"""
             CREATE OR REPLACE TABLE ent AS
-            SELECT n, s, d, widx, item, i,
+            SELECT n, s, d, widx, item, i, value,
                    CASE WHEN starts_with(item, '(') AND ends_with(item, ')') THEN 'single'
                         WHEN starts_with(item, '(') THEN 'open' ELSE 'close' END AS typ,
                    CASE WHEN starts_with(item, '(') THEN split_part(trim(item, '()'), '-', 1)
                         ELSE rtrim(item, ')') END AS key,
-                   trim(item, '()') AS spec, value
+                   trim(item, '()') AS spec
             FROM (SELECT n, s, d, widx, value, unnest(items) AS item, generate_subscripts(items, 1) AS i FROM (
-                    SELECT n, s, d, widx, value, regexp_extract_all(value, {_q(_ITEM_RE)}) AS items FROM (
-                        SELECT n, s, d, widx, regexp_extract(misc, '(?:^|\\|)Entity=([^|]*)', 1) AS value FROM w
-                        WHERE contains(misc, 'Entity='))))""")
-        # a value that the items do not cover entirely is malformed
+                    SELECT *, regexp_extract_all(value, {_q(_ITEM_RE)}) AS items FROM ent_arrow))""")
+        con.unregister("ent_arrow")
         bad = con.execute("""
             SELECT min(n), any_value(value) FROM (SELECT n, value, string_agg(item, '' ORDER BY i) AS joined
-                FROM ent GROUP BY n, value) WHERE joined <> value""").fetchone()
+                FROM ent GROUP BY n, value) WHERE joined <> value""").fetchall()[0]
         if bad[0] is not None:
             self._mention_problem(bad[0], f"cannot read the Entity value {bad[1]!r} "
                                           "(expected '(id-...', 'id)' or '(id-...)')")
-        # pair brackets per (document, id) by nesting level
+        # brackets of one id in one document pair by nesting level, in order
         con.execute("""
             CREATE OR REPLACE TABLE ev AS
             SELECT *, CASE WHEN typ = 'close' THEN r + 1 ELSE r END AS lvl FROM (
                 SELECT *, sum(CASE typ WHEN 'open' THEN 1 WHEN 'close' THEN -1 ELSE 0 END)
                           OVER (PARTITION BY d, key ORDER BY n, i ROWS UNBOUNDED PRECEDING) AS r
                 FROM ent WHERE typ <> 'single')""")
-        con.execute("""
-            CREATE OR REPLACE TABLE ev2 AS
-            SELECT *, row_number() OVER (PARTITION BY d, key, lvl, typ ORDER BY n, i) AS k FROM ev""")
-        neg = con.execute("SELECT min(n), any_value(key) FROM ev2 WHERE lvl <= 0").fetchone()
+        con.execute("CREATE OR REPLACE TABLE ev2 AS SELECT *, row_number() OVER "
+                    "(PARTITION BY d, key, lvl, typ ORDER BY n, i) AS k FROM ev")
+        neg = con.execute("SELECT min(n), any_value(key) FROM ev2 WHERE lvl <= 0").fetchall()[0]
         if neg[0] is not None:
             self._mention_problem(neg[0], f"entity bracket '{neg[1]})' closes a mention that was never opened")
         con.execute("""
             CREATE OR REPLACE TABLE pairs AS
-            SELECT row_number() OVER () AS pid, * FROM (
-            SELECT o.n AS n_open, o.s AS s_open, o.widx AS w0, c.widx AS w1, c.s AS s_close, o.spec, o.d, o.key,
-                   c.n AS n_close
-            FROM (SELECT * FROM ev2 WHERE typ = 'open') o
-            LEFT JOIN (SELECT * FROM ev2 WHERE typ = 'close') c USING (d, key, lvl, k)
-            UNION ALL
-            SELECT n, s, widx, widx, s, spec, d, key, n FROM ent WHERE typ = 'single')""")
-        unclosed = con.execute("SELECT min(n_open), any_value(key) FROM pairs WHERE w1 IS NULL").fetchone()
+            SELECT row_number() OVER (ORDER BY n_open, i) AS pid, * FROM (
+                SELECT o.n AS n_open, o.i, o.s AS s_open, o.widx AS w0, c.widx AS w1, c.s AS s_close, o.spec, o.d,
+                       o.key, c.n AS n_close
+                FROM (SELECT * FROM ev2 WHERE typ = 'open') o
+                LEFT JOIN (SELECT * FROM ev2 WHERE typ = 'close') c USING (d, key, lvl, k)
+                UNION ALL
+                SELECT n, i, s, widx, widx, s, spec, d, key, n FROM ent WHERE typ = 'single')""")
+        unclosed = con.execute("SELECT min(n_open), any_value(key) FROM pairs WHERE w1 IS NULL").fetchall()[0]
         if unclosed[0] is not None:
             self._mention_problem(unclosed[0], f"entity bracket '({unclosed[1]}' opened here is never closed")
-        crossing = con.execute("SELECT min(n_close), any_value(key) FROM pairs WHERE s_close <> s_open").fetchone()
+        crossing = con.execute("SELECT min(n_close), any_value(key) FROM pairs WHERE s_close <> s_open").fetchall()[0]
         if crossing[0] is not None:
             self._mention_problem(crossing[0], f"entity mention '{crossing[1]}' closes in another sentence "
                                                "than it opened")
@@ -556,161 +672,143 @@ class ConlluImporter:
             raise StrataError(message, file=str(self.path), line=line)
         self.report.warnings.append(f"{self.path}:{line}: {message} (mention dropped)")
 
-    # -- writing -------------------------------------------------------------------------
-    def _copy(self, layer: str, select: str) -> int:
-        """Write ``select`` as a staged part of ``layer``, with the full anchor schema first."""
-        path = self.batch.stage / f"{layer}--c{self.n_file:04d}.parquet"
-        have = {r[0] for r in self.con.execute(f"DESCRIBE {select}").fetchall()}
-        required = EDGE_COLUMNS if self.batch.layer_kind(layer) == "edges" else ANCHOR_COLUMNS
-        head = [f"CAST({_ident(c) if c in have else 'NULL'} AS {_DUCK_TYPES[t]}) AS {_ident(c)}"
-                for c, t in required.items()]
-        rest = [c for c in have if c not in required]
-        order = "ORDER BY " + ("src" if required is EDGE_COLUMNS else "id")
-        cols = ", ".join(head + [_ident(c) for c in sorted(rest, key=self._column_rank(select))])
-        select = f"SELECT {cols} FROM ({select}) {order}"
-        self.con.execute(f"COPY ({select}) TO {_q(str(path))} (FORMAT parquet, COMPRESSION zstd, "
-                         f"ROW_GROUP_SIZE 122880)")
-        rows = self.con.execute(f"SELECT count(*) FROM read_parquet({_q(str(path))})").fetchone()[0]
-        if rows == 0:
-            path.unlink()
+    # -- writing ---------------------------------------------------------------------------
+    def _stage(self, layer: str, table: pa.Table) -> int:
+        if table.num_rows == 0:
             return 0
-        self.batch.add_staged(layer, path, rows)
-        return rows
-
-    def _column_rank(self, select: str):
-        """Keep the select's own column order for the attribute columns."""
-        names = [r[0] for r in self.con.execute(f"DESCRIBE {select}").fetchall()]
-        pos = {c: i for i, c in enumerate(names)}
-        return lambda c: pos[c]
-
-    def _flat(self, table: str, col: str, where: str = "TRUE") -> str:
-        """``, nullif(regexp_extract(...)) AS "col.Key"`` for every key seen in ``col``."""
-        keys = [k for (k,) in self.con.execute(
-            f"SELECT DISTINCT split_part(unnest(string_split({col}, '|')), '=', 1) AS k FROM {table} "
-            f"WHERE {col} <> '_' AND {where} ORDER BY k").fetchall() if k]
-        out = []
-        x = f"('|' || {col})"
-        for k in keys:
-            needle = _q("|" + k + "=")
-            out.append(f", nullif(CASE WHEN contains({x}, {needle}) THEN split_part(substr({x}, strpos({x}, {needle}) "
-                       f"+ {len(k) + 2}), '|', 1) END, '') AS {_ident(col + '.' + k)}")
-        return "".join(out)
+        self.n_part += 1
+        kind = self.batch.layer_kind(layer)
+        required = EDGE_COLUMNS if kind == "edges" else ANCHOR_COLUMNS
+        cols, names = [], []
+        for name, typ in required.items():
+            col = table.column(name) if name in table.column_names else pa.nulls(table.num_rows, typ)
+            cols.append(col.cast(typ) if col.type != typ else col)
+            names.append(name)
+        for name in table.column_names:
+            if name not in required:
+                cols.append(table.column(name))
+                names.append(name)
+        path = self.batch.stage / f"{layer}--p{self.n_part:05d}.parquet"
+        # pyarrow writes without the GIL: the next block is computed meanwhile
+        self._writes.append(self._writer.submit(pq.write_table, pa.Table.from_arrays(cols, names=names), path,
+                                                compression="zstd", row_group_size=122_880))
+        self.batch.add_staged(layer, path, table.num_rows)
+        return table.num_rows
 
     def _write(self) -> None:
-        con, N, ids = self.con, self.names, self.ids
-        nul = lambda c: f"nullif({c}, '_')"
-        anchors = "db.doc AS doc, db.base + {s} AS start, db.base + {e} AS \"end\""
-        # tokens
-        tid = f"{ids['tok']} + (w.widx - {self.tok_ord - self.counts['tok']})"
-        tok_base = self.tok_ord - self.counts["tok"]
-        con.execute(f"""
-            CREATE OR REPLACE TABLE tok_out AS
-            SELECT {tid} AS id, {anchors.format(s='w.lstart', e='w.lend')}, s2.sid AS sent, w.widx AS ord,
-                   w.widx AS tok_first, w.widx AS tok_last, w.uidx AS word_first, w.uidx AS word_last,
-                   w.cid, w.form, w.lemma, {nul('w.upos')} AS upos, {nul('w.xpos')} AS xpos,
-                   {nul('w.feats')} AS feats, TRY_CAST(w.head AS INTEGER) AS head_num, {nul('w.deprel')} AS deprel,
-                   {nul('w.deps')} AS deps, {nul('w.misc')} AS misc,
-                   CASE WHEN tr.parent_row IS NOT NULL THEN {ids['tok']} + tr.parent_row END AS parent,
-                   CAST(tr.depth AS INTEGER) AS depth, tr.pre, tr.post, w.s, w.n
-            FROM w JOIN dbase db USING (d) JOIN sent2 s2 USING (s)
-            LEFT JOIN tree tr ON tr.row = w.widx - {tok_base}""")
-        n_tok = self._copy(N["token"], "SELECT * EXCLUDE (s, n)" + self._flat("tok_out", "feats") +
-                           self._flat("tok_out", "misc") + " FROM tok_out ORDER BY id")
+        N, W, U, E, S, T = self.names, self.W, self.U, self.E, self.S, self.T
+        c = self.cols
+        nul = lambda a: pc.if_else(pc.equal(a, "_"), pa.scalar(None, pa.string()), a)
+        masked = lambda v: pa.array(v, mask=v < 0)
+        wr = pa.array(W["rows"])
+        n_tok = len(W["rows"])
+        tok = {"id": self.id_tok + np.arange(n_tok), "doc": W["doc"], "start": W["start"], "end": W["end"],
+               "sent": W["sent"], "tok_first": W["ord"], "tok_last": W["ord"], "word_first": W["word"],
+               "word_last": W["word"], "ord": W["ord"]}
+        for name in ("cid", "form", "lemma"):
+            tok[name] = c[name].take(wr)
+        for name in ("upos", "xpos", "feats"):
+            tok[name] = nul(c[name].take(wr))
+        tok["head_num"] = masked(self.head_i[W["rows"]])
+        for name in ("deprel", "deps", "misc"):
+            tok[name] = nul(c[name].take(wr))
+        tok["parent"] = masked(T["parent"])
+        tok["depth"] = pa.array(T["depth"], mask=T["depth"] < 0).cast(pa.int32())
+        tok["pre"], tok["post"] = masked(T["pre"]), masked(T["post"])
+        tok.update(_flatten("feats", tok["feats"]))
+        tok.update(_flatten("misc", tok["misc"]))
+        self.report.add("tokens", self._stage(N["token"], pa.table(tok)))
         # surface words
-        con.execute(f"""
-            CREATE OR REPLACE TABLE word_out AS
-            SELECT {ids['word']} + (u.uidx - {self.word_ord - self.counts['unit']}) AS id,
-                   {anchors.format(s='u.lstart', e='u.lstart + length(u.form)')}, s2.sid AS sent, u.uidx AS ord,
-                   r.tok_first, r.tok_last, u.uidx AS word_first, u.uidx AS word_last,
-                   u.cid, u.form, u.kind = 'm' AS mwt,
-                   CASE WHEN u.kind = 'm' THEN m.lemma || chr(9) || m.upos || chr(9) || m.xpos || chr(9) ||
-                        m.feats || chr(9) || m.head || chr(9) || m.deprel || chr(9) || m.deps END AS mwt_fields,
-                   CASE WHEN u.kind = 'm' THEN {nul('u.misc')} END AS misc
-            FROM unit2 u JOIN dbase db USING (d) JOIN sent2 s2 USING (s)
-            JOIN (SELECT uidx, min(widx) AS tok_first, max(widx) AS tok_last FROM w GROUP BY uidx) r USING (uidx)
-            LEFT JOIN tk2 m ON m.n = u.n AND u.kind = 'm'""")
-        n_word = self._copy(N["word"], "SELECT *" + self._flat("word_out", "misc") + " FROM word_out ORDER BY id")
-        # empty nodes: zero width at the end of the word they follow
-        con.execute(f"""
-            CREATE OR REPLACE TABLE empty_out AS
-            SELECT {ids['empty']} + row_number() OVER (ORDER BY e.n) - 1 AS id,
-                   {anchors.format(s='coalesce(w.lend, s0.lstart)', e='coalesce(w.lend, s0.lstart)')},
-                   s2.sid AS sent, e.cid, e.form, e.lemma, {nul('e.upos')} AS upos, {nul('e.xpos')} AS xpos,
-                   {nul('e.feats')} AS feats, {nul('e.deps')} AS deps, {nul('e.misc')} AS misc, e.s, e.n
-            FROM tk2 e JOIN dbase db USING (d) JOIN sent2 s2 USING (s)
-            LEFT JOIN w ON w.s = e.s AND w.cid_i = CAST(split_part(e.cid, '.', 1) AS BIGINT)
-            LEFT JOIN (SELECT s, min(lstart) AS lstart FROM w GROUP BY s) s0 ON s0.s = e.s
-            WHERE e.kind = 'e'""")
-        n_empty = self._copy(N["empty"], "SELECT * EXCLUDE (s, n)" + self._flat("empty_out", "feats") +
-                             self._flat("empty_out", "misc") + " FROM empty_out ORDER BY id")
-        # sentences with their comment attributes as columns
+        ur = pa.array(U["rows"])
+        is_mwt = U["is_mwt"]
+        mwt_fields = pc.binary_join_element_wise(*[c[k].take(ur) for k in COLUMNS[2:9]], "\t")
+        null_str = pa.scalar(None, pa.string())
+        word = {"id": self.id_word + np.arange(len(U["rows"])), "doc": U["doc"], "start": U["start"], "end": U["end"],
+                "sent": U["sent"], "tok_first": U["tok_first"], "tok_last": U["tok_last"], "word_first": U["ord"],
+                "word_last": U["ord"], "ord": U["ord"], "cid": c["cid"].take(ur), "form": c["form"].take(ur),
+                "mwt": pa.array(is_mwt), "mwt_fields": pc.if_else(pa.array(is_mwt), mwt_fields, null_str),
+                "misc": pc.if_else(pa.array(is_mwt), nul(c["misc"].take(ur)), null_str)}
+        word.update(_flatten("misc", word["misc"]))
+        self.report.add("words", self._stage(N["word"], pa.table(word)))
+        self.report.add("multiword tokens", int(is_mwt.sum()))
+        # empty nodes
+        er = pa.array(E["rows"])
+        empty = {"id": self.id_empty + np.arange(len(E["rows"])), "doc": E["doc"], "start": E["start"],
+                 "end": E["end"], "sent": E["sent"], "cid": c["cid"].take(er), "form": c["form"].take(er),
+                 "lemma": c["lemma"].take(er)}
+        for name in ("upos", "xpos", "feats", "deps", "misc"):
+            empty[name] = nul(c[name].take(er))
+        empty.update(_flatten("feats", empty["feats"]))
+        empty.update(_flatten("misc", empty["misc"]))
+        self.report.add("empty nodes", self._stage(N["empty"], pa.table(empty)))
+        self._write_sentences()
+        self._write_edges(tok)
+        self._write_mentions(tok)
+
+    def _write_sentences(self) -> None:
+        con, S = self.con, self.S
         keys = [k for (k,) in con.execute("""
             SELECT DISTINCT key FROM com WHERE NOT doc_level AND NOT starts_with(key, 'newdoc')
               AND key NOT IN ('sent_id', 'text', '') ORDER BY key""").fetchall()]
-        reserved = {"id", "doc", "start", "end", "t_start", "t_end", "sent", "tok_first", "tok_last", "word_first",
-                    "word_last", "sent_id", "text", "comments"}
         attr_cols = "".join(
             f", last(value ORDER BY n) FILTER (WHERE key = {_q(k)} AND NOT doc_level) "
-            f"AS {_ident(k if k not in reserved else 'comment.' + k)}" for k in keys)
-        con.execute("""
-            CREATE OR REPLACE TABLE sent_out AS
-            SELECT s2.sid AS id, db.doc AS doc, db.base + min(w.lstart) AS start, db.base + max(w.lend) AS "end",
-                   s2.sid AS sent, min(w.widx) AS tok_first, max(w.widx) AS tok_last,
-                   min(w.uidx) AS word_first, max(w.uidx) AS word_last, s2.s
-            FROM sent2 s2 JOIN dbase db USING (d) JOIN w USING (s)
-            GROUP BY s2.sid, s2.s, db.doc, db.base""")
-        con.execute(f"""
-            CREATE OR REPLACE TABLE sent_attrs AS
-            SELECT s, last(value ORDER BY n) FILTER (WHERE key = 'sent_id') AS sent_id,
-                   last(value ORDER BY n) FILTER (WHERE key = 'text') AS text,
-                   string_agg(line, chr(10) ORDER BY n) AS comments{attr_cols}
-            FROM com c GROUP BY s""")
-        con.execute("""
-            CREATE OR REPLACE TABLE sent_out2 AS
-            SELECT o.* EXCLUDE (s), a.* EXCLUDE (s, comments), coalesce(a.comments, '') AS comments
-            FROM sent_out o LEFT JOIN sent_attrs a USING (s)""")
-        con.execute("DROP TABLE sent_out")
-        con.execute("ALTER TABLE sent_out2 RENAME TO sent_out")
-        n_sent = self._copy(N["sentence"], "SELECT * FROM sent_out ORDER BY id")
-        # text check: the "# text" comment must equal the rebuilt sentence
-        mismatches = con.execute("""
-            SELECT s2.first_line, o.sent_id FROM sent_out o JOIN sent2 s2 ON s2.sid = o.id
-            JOIN documents_text dt ON dt.doc = o.doc
-            WHERE o.text IS NOT NULL AND o.text <> substr(dt.text, CAST(o.start - dt.base + 1 AS INTEGER),
-                                                          CAST(o."end" - o.start AS INTEGER))
-            ORDER BY 1 LIMIT 50""").fetchall() if self._register_texts() else []
-        for line, sid in mismatches:
-            self.report.warnings.append(f"{self.path}:{line}: the '# text' of sentence {sid} differs from its tokens "
-                                        "joined by SpaceAfter")
-        # dependency edges
-        self._copy(N["dep"], f"""
-            SELECT t.id AS src, h.id AS dst, t.deprel AS label, t.doc FROM tok_out t
-            JOIN tok_out h ON h.s = t.s AND TRY_CAST(h.cid AS INTEGER) = t.head_num WHERE t.head_num > 0
-            ORDER BY t.id""")
-        con.execute("CREATE OR REPLACE TABLE node_ids AS SELECT s, cid, id FROM tok_out UNION ALL "
-                    "SELECT s, cid, id FROM empty_out")
-        self._copy(N["enhanced"], f"""
-            SELECT a.id AS src, b.id AS dst, d.rel AS label, db.doc FROM deps d
-            JOIN sent USING (s) JOIN dbase db USING (d)
-            JOIN node_ids a ON a.s = d.s AND a.cid = d.cid
-            LEFT JOIN node_ids b ON b.s = d.s AND b.cid = d.h
-            ORDER BY d.n, d.item""")
-        n_mentions, n_chains = self._write_mentions()
-        self.report.add("sentences", n_sent)
-        self.report.add("tokens", n_tok)
-        self.report.add("words", n_word)
-        self.report.add("multiword tokens", con.execute("SELECT count(*) FROM unit2 WHERE kind = 'm'").fetchone()[0])
-        self.report.add("empty nodes", n_empty)
-        self.report.add("mentions", n_mentions)
-        self.report.add("chains", n_chains)
+            f"AS {_ident(k if k not in _RESERVED else 'comment.' + k)}" for k in keys)
+        con.register("sent_arrow", pa.table({k: S[k] for k in ("id", "doc", "start", "end", "tok_first", "tok_last",
+                                                                "word_first", "word_last", "s")}))
+        table = con.sql(f"""
+            SELECT o.* EXCLUDE (s), o.id AS sent, a.* EXCLUDE (s, comments), coalesce(a.comments, '') AS comments
+            FROM sent_arrow o LEFT JOIN (
+                SELECT s, last(value ORDER BY n) FILTER (WHERE key = 'sent_id') AS sent_id,
+                       last(value ORDER BY n) FILTER (WHERE key = 'text') AS text,
+                       string_agg(line, chr(10) ORDER BY n) AS comments{attr_cols}
+                FROM com GROUP BY s) a USING (s)
+            ORDER BY o.id""").to_arrow_table()
+        con.unregister("sent_arrow")
+        self.report.add("sentences", self._stage(self.names["sentence"], table))
+        # the "# text" comment must equal the rebuilt sentence
+        texts = table.column("text").to_pylist()
+        starts, ends, docs = S["start"], S["end"], S["doc"]
+        by_num = {d.doc: d for d in self.known_docs.values()}
+        for k, t in enumerate(texts):
+            if t is None:
+                continue
+            info = by_num[int(docs[k])]
+            rebuilt = info.text[int(starts[k]) - info.base:int(ends[k]) - info.base]
+            if rebuilt != t:
+                self.report.warnings.append(f"{self.path}:{int(S['line'][k])}: the '# text' of sentence "
+                                            f"{self.sent_ids.get(int(S['s'][k]))} differs from its tokens joined by "
+                                            "SpaceAfter")
 
-    def _register_texts(self) -> bool:
-        rows = [(d.doc, d.base, d.text) for d in self.known_docs.values()]
-        self.con.execute("CREATE OR REPLACE TABLE documents_text (doc INTEGER, base BIGINT, text VARCHAR)")
-        self.con.executemany("INSERT INTO documents_text VALUES (?, ?, ?)", rows)
-        return True
+    def _write_edges(self, tok: dict) -> None:
+        W = self.W
+        n_tok = len(W["rows"])
+        head = self.head_i[W["rows"]]
+        has = head > 0
+        seg_first = np.searchsorted(W["seg"], W["seg"])          # first word of each word's sentence
+        src = self.id_tok + np.flatnonzero(has)
+        dst = self.id_tok + seg_first[has] + head[has] - 1
+        dep = pa.table({"src": src, "dst": dst, "label": tok["deprel"].filter(pa.array(has)), "doc": W["doc"][has]})
+        self._stage(self.names["dep"], dep)
+        if self.deps_items is None:
+            return
+        parent, h, h_digit, h_int, rel = self.deps_items
+        # node ids of the rows that carry DEPS (words or empty nodes), and of the heads
+        row_id = np.full(len(self.n), -1, np.int64)
+        row_id[W["rows"]] = self.id_tok + np.arange(n_tok)
+        row_id[self.E["rows"]] = self.id_empty + np.arange(len(self.E["rows"]))
+        src = row_id[parent]
+        seg = self.seg_id[parent]
+        first_w = np.searchsorted(W["seg"], seg)
+        dst = np.where(h_digit & (h_int > 0), self.id_tok + first_w + h_int - 1, -1)
+        empty_ids = {(int(self.seg_id[r]), self.cols["cid"][int(r)].as_py()): int(self.id_empty + k)
+                     for k, r in enumerate(self.E["rows"])}
+        for k in np.flatnonzero(~h_digit):
+            dst[k] = empty_ids.get((int(seg[k]), h[int(k)].as_py()), -1)
+        doc = self.doc_num[np.searchsorted(self.doc_d, self.d[parent])]
+        enh = pa.table({"src": src, "dst": pa.array(dst, mask=dst < 0), "label": rel, "doc": doc})
+        self._stage(self.names["enhanced"], enh)
 
-    def _write_mentions(self) -> tuple[int, int]:
+    def _write_mentions(self, tok: dict) -> None:
         """Mentions with chain ids: the mentions of one entity id in one document.
 
         The identity relation "same entity id" makes every chain a clique, so its graph
@@ -718,15 +816,16 @@ class ConlluImporter:
         components as a graph search, in one vectorised pass.
         """
         con = self.con
-        n = con.execute("SELECT count(*) FROM pairs").fetchone()[0]
+        n = con.execute("SELECT count(*) FROM pairs").fetchall()[0][0]
         if n == 0:
-            return 0, 0
+            return
         specs = dict(con.execute("""
-            SELECT dmap.d, coalesce(max(c.value), ?) FROM dmap LEFT JOIN sent USING (d)
-            LEFT JOIN com c ON c.s = sent.s AND c.key = 'global.Entity' GROUP BY dmap.d""",
+            SELECT d, coalesce(last(value ORDER BY n) FILTER (WHERE key = 'global.Entity'), ?) FROM com GROUP BY d""",
                                  [DEFAULT_ENTITY_FIELDS]).fetchall())
+        for d, *_ in self.doc_list:
+            specs.setdefault(d, DEFAULT_ENTITY_FIELDS)
         first_id = self.batch.alloc_ids(n)
-        n_chains = con.execute("SELECT count(DISTINCT (d, split_part(key, '[', 1))) FROM pairs").fetchone()[0]
+        n_chains = con.execute("SELECT count(DISTINCT (d, split_part(key, '[', 1))) FROM pairs").fetchall()[0][0]
         first_chain = self.batch.alloc_chains(n_chains)
         selects = []
         for spec in sorted(set(specs.values())):
@@ -735,49 +834,101 @@ class ConlluImporter:
             cols = []
             for k, name in enumerate(fields[1:], start=2):
                 col = "type" if name == "etype" else name
-                if col in ("entity", "id", "doc", "start", "end", "sent", "chain", "chain_pos", "first_mention"):
+                if col in _RESERVED | {"entity", "chain", "chain_pos", "first_mention"}:
                     col = "entity." + col
                 if k < len(fields):
                     expr = f"nullif(string_split(p.spec, '-')[{k}], '')"
                 else:
                     expr = f"nullif(array_to_string(string_split(p.spec, '-')[{k}:], '-'), '')"
                 cols.append(f"{expr} AS {_ident(col)}")
-            selects.append(f"SELECT p.*, {', '.join(cols) if cols else 'NULL AS type'} FROM pairs p "
+            selects.append(f"SELECT p.*{''.join(', ' + c for c in cols)} FROM pairs p "
                            f"WHERE p.d IN ({', '.join(str(int(d)) for d in docs)})")
-        con.execute("CREATE OR REPLACE TABLE pairs2 AS " + " UNION ALL BY NAME ".join(selects))
-        con.execute(f"""
-            CREATE OR REPLACE TABLE mention_out AS
+        con.register("tok_arrow", pa.table({"widx": np.arange(len(self.W["rows"])), "doc": tok["doc"],
+                                            "start": tok["start"], "end": tok["end"], "sent": tok["sent"],
+                                            "ord": tok["ord"], "word": tok["word_first"]}))
+        table = con.sql(f"""
             SELECT *, chain_pos = 0 AS first_mention FROM (
-                SELECT {first_id} + row_number() OVER (ORDER BY a.start, a."end" DESC, p.n_open) - 1 AS id,
-                       a.doc, a.start, a."end", a.sent, a.tok_first, a.tok_last, a.word_first, a.word_last,
-                       split_part(p.key, '[', 1) AS entity,
+                SELECT {first_id} + row_number() OVER (ORDER BY t0.start, t1."end" DESC, p.pid) - 1 AS id,
+                       t0.doc, t0.start, t1."end", t0.sent, t0.ord AS tok_first, t1.ord AS tok_last,
+                       t0.word AS word_first, t1.word AS word_last, split_part(p.key, '[', 1) AS entity,
                        {first_chain} + dense_rank() OVER (ORDER BY p.d, split_part(p.key, '[', 1)) - 1 AS chain,
                        row_number() OVER (PARTITION BY p.d, split_part(p.key, '[', 1)
-                                          ORDER BY a.start, a."end" DESC, p.n_open) - 1 AS chain_pos,
-                       p.* EXCLUDE (pid, n_open, s_open, w0, w1, s_close, spec, d, key, n_close)
-                FROM pairs2 p JOIN (
-                    SELECT p.pid, t0.doc, t0.start, t1."end", t0.sent, t0.ord AS tok_first,
-                           t1.ord AS tok_last, t0.word_first, t1.word_last
-                    FROM pairs p JOIN tok_out t0 ON t0.ord = p.w0 JOIN tok_out t1 ON t1.ord = p.w1) a
-                USING (pid))""")
-        rows = self._copy(self.names["mention"], "SELECT * FROM mention_out ORDER BY id")
-        return rows, n_chains
+                                          ORDER BY t0.start, t1."end" DESC, p.pid) - 1 AS chain_pos,
+                       p.* EXCLUDE (pid, n_open, i, s_open, w0, w1, s_close, spec, d, key, n_close)
+                FROM ({' UNION ALL BY NAME '.join(selects)}) p
+                JOIN tok_arrow t0 ON t0.widx = p.w0 JOIN tok_arrow t1 ON t1.widx = p.w1)
+            ORDER BY id""").to_arrow_table()
+        con.unregister("tok_arrow")
+        self.report.add("mentions", self._stage(self.names["mention"], table))
+        self.report.add("chains", n_chains)
 
     def close(self) -> None:
+        """Wait for the staged parts to be written (re-raising a write error)."""
+        try:
+            for f in self._writes:
+                f.result()
+        finally:
+            self._writer.shutdown(wait=True)
+            self.con.close()
         self.batch.set_meta("next_order", self.order)
-        self.con.close()
 
 
-_DUCK_TYPES = {pa.int64(): "BIGINT", pa.int32(): "INTEGER", pa.float64(): "DOUBLE", pa.string(): "VARCHAR"}
+def _flatten(prefix: str, column: pa.Array) -> dict[str, pa.Array]:
+    """``Key=Value|...`` strings as one column per key (``prefix.Key``), NULL where absent."""
+    n = len(column)
+    filled = pc.fill_null(column, "")
+    items = pc.split_pattern(filled, "|")
+    parent = _np(pc.list_parent_indices(items))
+    flat = items.flatten()
+    if len(flat) == 0:
+        return {}
+    has_value = _np(pc.match_substring(flat, "="))
+    kv = pc.split_pattern(flat.filter(pa.array(has_value)), "=", max_splits=1)
+    parent = parent[has_value]
+    if len(kv) == 0:
+        return {}
+    keys = pc.list_element(kv, 0)
+    values = pc.list_element(kv, 1)
+    out: dict[str, pa.Array] = {}
+    for key in sorted(k for k in pc.unique(keys).to_pylist() if k):
+        sel = _np(pc.equal(keys, key))
+        rows = parent[sel]
+        vals = values.filter(pa.array(sel))
+        index = np.full(n, len(vals), np.int64)
+        index[rows] = np.arange(len(vals))
+        padded = pa.concat_arrays([vals.cast(pa.string()), pa.array([None], pa.string())])
+        col = padded.take(pa.array(index))
+        out[f"{prefix}.{key}"] = pc.if_else(pc.equal(col, ""), pa.scalar(None, pa.string()), col)
+    return out
 
 
-def _raise_bad_utf8(path: Path) -> None:
+def _blocks(path: Path) -> Iterator[tuple[bytes, int]]:
+    """The file in blocks of about BLOCK_BYTES that end just before a ``# newdoc`` line."""
     with open(path, "rb") as f:
-        for number, raw in enumerate(f, 1):
-            try:
-                raw.decode("utf-8")
-            except UnicodeDecodeError as e:
-                raise StrataError(f"invalid UTF-8 at byte {e.start} of the line", file=str(path), line=number) from None
+        carry = b""
+        line = 1
+        while True:
+            chunk = f.read(BLOCK_BYTES)
+            data = carry + chunk
+            if not chunk:
+                if data:
+                    yield data, line
+                return
+            cut = data.rfind(b"\n# newdoc", 1)
+            if cut < 0:
+                carry = data
+                continue
+            block, carry = data[:cut + 1], data[cut + 1:]
+            yield block, line
+            line += block.count(b"\n")
+
+
+def _raise_bad_utf8(data: bytes, first_line: int, path: Path) -> None:
+    for number, raw in enumerate(data.split(b"\n"), first_line):
+        try:
+            raw.decode("utf-8")
+        except UnicodeDecodeError as e:
+            raise StrataError(f"invalid UTF-8 at byte {e.start} of the line", file=str(path), line=number) from None
     raise StrataError("invalid UTF-8", file=str(path))
 
 
