@@ -71,7 +71,9 @@ def test_table_on_stdout(small):
     assert set(lines[1].replace(" ", "")) == {"-"}
     assert lines[-1] == f"({n} rows)" and n > 1
     assert len(lines) == 2 + min(n, 50) + (n > 50) + 1        # header, rule, rows, "more", count
-    assert all(len(line) <= 80 for line in lines)             # 80 columns when not on a terminal
+    # rich's console is 80 columns wide when stdout is not a terminal (its documented default,
+    # quoted from memory)
+    assert all(len(line) <= 80 for line in lines)
 
 
 @pytest.mark.parametrize("query", [COMMAS, QUOTES])
@@ -249,6 +251,19 @@ def test_bad_regular_expression(small):
     done = strata("query", small[0], query)
     assert done.returncode == 2 and "Traceback" not in done.stderr
     assert caret_column(done.stderr, query) == query.index('"(') + 1
+
+
+@pytest.mark.parametrize("args, says", [
+    (["find t = token(lemmma = \"x\")"], "did you mean: lemma"),
+    (["find t = token", "--limit", "-1"], "limit must not be negative"),
+    (["find t = token", "--context", "-1"], "context must be 0 or more words"),
+    (["find t = token", "--format", "xml"], "unknown output format 'xml'"),
+    ([""], "empty query"),
+])
+def test_other_mistakes_are_user_errors(small, args, says):
+    done = strata("query", small[0], *args)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert says in done.stderr
 
 
 @pytest.mark.parametrize("query", [
