@@ -12,6 +12,10 @@ from pathlib import Path
 from rich.console import Console
 
 DATA = Path(__file__).resolve().parent / "data"
+#: hit tables are shown this wide at least, so the values a query asks for are not dropped
+TABLE_WIDTH = 120
+#: rows of each hit table shown by the demo
+SHOWN_ROWS = 20
 
 #: (file, format, options) in import order; files that are absent are skipped.
 IMPORTS: list[tuple[str, str, dict]] = [
@@ -21,11 +25,45 @@ IMPORTS: list[tuple[str, str, dict]] = [
     ("calls.spans.tsv", "spans", {"anchor": "chars", "layer": "disfluency"}),
 ]
 
-#: (explanation, query) pairs shown by the demo.
+#: (explanation, query) pairs shown by the demo.  Each one joins layers that came from
+#: different files: that is what the demo is for.
 SHOWCASE: list[tuple[str, str]] = [
-    ("Pronoun subjects and the verbs they depend on, counted by verb lemma.",
-     'find s = token(upos = "PRON", deprel = "nsubj"), v = token(upos = "VERB")\n'
-     "where s depends on v\ncount by v.lemma"),
+    ("Silent pauses inside a turn (time tier) that end just as a subject phrase "
+     "(constituency tree) begins, with the pause's start and length in seconds.",
+     'find p = pauses(speaker is not missing), np = tree(label = "NP-SBJ", reading = 0)\n'
+     "where p meets np\n"
+     "show p.start, p.duration"),
+    ("Filled pauses (disfluency spans) by the speaker of their sentence (CoNLL-U comment) "
+     "and the smallest constituent (tree) around them.",
+     'find f = disfluency(label = "filled_pause"), c = tree(reading = 0)\n'
+     "where f inside c and not c same span as f\n"
+     "without d = tree where d under c and f inside d and not d same span as f\n"
+     "count by f.sentence.speaker, c.cat"),
+    ("Restarts and their repairs: a reparandum and the repair of the same group, and the "
+     "time from the end of one to the start of the other (from the word timings).",
+     'find r = disfluency(label = "reparandum"), p = disfluency(label = "repair")\n'
+     "where r.group = p.group and r precedes p\n"
+     "show r.group, gap(r, p)"),
+    ("Ambiguous sentences: the same prepositional phrase attached to the verb phrase in one "
+     "tree reading and to the noun phrase in the other, with both reading numbers.",
+     'find pp_v = tree(cat = "PP"), vp = tree(cat = "VP"), pp_n = tree(cat = "PP"), np = tree(cat = "NP")\n'
+     "where pp_v child of vp and pp_n child of np and pp_v same span as pp_n\n"
+     "count by pp_v.sentence.sent_id, pp_v.text, pp_v.reading, pp_n.reading"),
+    ("Third-person pronouns (tokens) and the previous mention of their entity (coreference), "
+     "with the seconds between the two on the recording.",
+     'find a = mention, p = mention, t = token(upos = "PRON", feats.Person = "3")\n'
+     "where a previous mention of p and t same span as p\n"
+     "show gap(a, p)"),
+    ("Phones (aligner tier) of words wholly inside subject phrases (tree): mean phone "
+     "duration in seconds by the speaker of the sentence.",
+     'find ph = phones, w = words, np = tree(label = "NP-SBJ", reading = 0)\n'
+     "where ph inside w and w inside np\n"
+     "mean(ph.duration) by np.sentence.speaker"),
+    ("Filled pauses (disfluency spans, anchored on characters) followed at once by a silent "
+     "pause (time tier): the silence that comes after the 'um'.",
+     'find f = disfluency(label = "filled_pause"), p = pauses\n'
+     "where f meets p\n"
+     "show p.duration"),
 ]
 
 
@@ -53,9 +91,12 @@ def run_demo(corpus: Path | None, console: Console) -> None:
         import engine.execute  # noqa: F401
     except ImportError:
         return
-    for explanation, text in SHOWCASE:
+    for number, (explanation, text) in enumerate(SHOWCASE, 1):
         console.print()
-        console.rule(explanation)
-        console.print(text, highlight=False)
-        hits = c.query(text, limit=20)
-        console.print(hits.render_table(width=console.width).replace("[", "\\["), soft_wrap=True)
+        console.rule(f"showcase {number}")
+        # one unwrapped line each, so the explanation reads (and greps) as written
+        console.print(explanation, markup=False, highlight=False, soft_wrap=True)
+        console.print(text, markup=False, highlight=False, soft_wrap=True)
+        hits = c.query(text, limit=SHOWN_ROWS)
+        console.print(hits.render_table(width=max(console.width, TABLE_WIDTH)), markup=False,
+                      highlight=False, soft_wrap=True)
