@@ -1,4 +1,4 @@
-"""The demo's showcase queries: each finds something, and several agree with values computed
+"""The demo's showcase queries: each finds something, and six agree with values computed
 here straight from the demo data files.
 
 Reference sources for the expected values: the `conllu` package (CoNLL-U reader: sentences,
@@ -358,6 +358,24 @@ def test_phones_in_words_inside_subject_phrases(results, demo):
     hits = showcase(results, "where ph inside w and w inside np")
     got = {r["np.sentence.speaker"]: (r["count"], r["mean(ph.duration)"]) for r in hits.rows()}
     assert got == {k: (len(v), pytest.approx(sum(v) / len(v))) for k, v in durations.items()}
+
+
+def test_silence_after_filled_pauses(results, demo):
+    """A pause row starting at the end time of the aligner's word that a filled_pause span covers."""
+    want = Counter()
+    for row in demo.spans:
+        if row["label"] != "filled_pause":
+            continue
+        start, end = int(row["start"]), int(row["end"])
+        s = demo.sentence_at(row["doc"], start, end)
+        word = demo.timed_words(row["doc"])[s.surface[s.spans.index((start, end))]]
+        assert word["label"] == row["text"].lower()
+        for p in demo.tier(row["doc"], "pauses"):
+            if rounded(p["start"]) == rounded(word["end"]):
+                want[(row["doc"], row["text"], rounded(float(p["end"]) - float(p["start"])))] += 1
+    hits = showcase(results, "where f meets p")
+    got = Counter((r["doc"], r["f.text"], rounded(r["p.duration"])) for r in hits.rows())
+    assert got == want
 
 
 # ---- the command ---------------------------------------------------------------------------
