@@ -6,7 +6,9 @@ and ends the command with exit code 2; there is no traceback for those.
 from __future__ import annotations
 
 import functools
+import shutil
 import sys
+import tempfile
 from pathlib import Path
 from typing import Callable, List, Optional
 
@@ -29,7 +31,7 @@ def user_errors(fn: Callable) -> Callable:
         try:
             return fn(*args, **kwargs)
         except StrataError as e:
-            err.print(f"[bold red]error:[/] {_escape(str(e))}")
+            err.print(f"[bold red]error:[/] {_escape(str(e))}", soft_wrap=True)
             raise typer.Exit(EXIT_USER_ERROR)
         except KeyboardInterrupt:
             err.print("interrupted; the corpus is unchanged")
@@ -149,7 +151,10 @@ def write_hits(hits, format: str, output: Optional[Path]) -> None:
     if format == "parquet" and output is None:
         raise StrataError("parquet output needs a file: add -o FILE")
     if output is None:
-        sys.stdout.write(writers[format](None))
+        with tempfile.TemporaryDirectory() as tmp:
+            path = writers[format](Path(tmp) / f"hits.{format}")
+            with open(path, encoding="utf-8", newline="") as f:
+                shutil.copyfileobj(f, sys.stdout)
     else:
         writers[format](output)
 
