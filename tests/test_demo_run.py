@@ -79,6 +79,14 @@ class Demo:
         assert len(found) == 1, (doc, start, end)
         return found[0]
 
+    def filled_pauses(self):
+        """(span row, its sentence, the index of the word it covers) for each filled_pause row."""
+        for row in self.spans:
+            if row["label"] == "filled_pause":
+                start, end = int(row["start"]), int(row["end"])
+                s = self.sentence_at(row["doc"], start, end)
+                yield row, s, s.spans.index((start, end))
+
     def tier(self, doc: str, name: str) -> list[dict[str, str]]:
         return [r for r in self.tiers if r["doc"] == doc and r["tier"] == name]
 
@@ -242,12 +250,8 @@ def test_filled_pauses_by_speaker_and_smallest_constituent(results, demo):
     """Each filled_pause row of the span table, with its sentence's speaker from the CoNLL-U
     and the category of the lowest constituent of reading 0 that is larger than the pause."""
     want = Counter()
-    for row in demo.spans:
-        if row["label"] != "filled_pause":
-            continue
+    for row, s, k in demo.filled_pauses():
         start, end = int(row["start"]), int(row["end"])
-        s = demo.sentence_at(row["doc"], start, end)
-        k = s.spans.index((start, end))
         best = None
         for pos, label, _, first, last in constituents(demo.trees[s.sent_id][0], s):
             span = (s.spans[first][0], s.spans[last][1])
@@ -363,12 +367,8 @@ def test_phones_in_words_inside_subject_phrases(results, demo):
 def test_silence_after_filled_pauses(results, demo):
     """A pause row starting at the end time of the aligner's word that a filled_pause span covers."""
     want = Counter()
-    for row in demo.spans:
-        if row["label"] != "filled_pause":
-            continue
-        start, end = int(row["start"]), int(row["end"])
-        s = demo.sentence_at(row["doc"], start, end)
-        word = demo.timed_words(row["doc"])[s.surface[s.spans.index((start, end))]]
+    for row, s, k in demo.filled_pauses():
+        word = demo.timed_words(row["doc"])[s.surface[k]]
         assert word["label"] == row["text"].lower()
         for p in demo.tier(row["doc"], "pauses"):
             if rounded(p["start"]) == rounded(word["end"]):
