@@ -100,9 +100,16 @@ def test_join_order_starts_from_the_most_selective_variable(corpus):
     assert state.plan.estimates["v"] < state.plan.estimates["w"]
 
 
-def test_top_level_dependency_is_a_join_and_nested_one_is_exists(corpus):
-    _, cat = corpus
-    top = compile_query("find a = token, b = token where a depends on b", cat).sql
-    nested = compile_query("find a = token, b = token where a depends on b or b depends on a", cat).sql
+def test_dependency_through_edge_table_or_tree_columns(corpus):
+    con, cat = corpus
+    # word layer: no tree of its own, so the edge set is joined (deduplicated) or tested with EXISTS
+    top = compile_query("find a = word, b = word where a depends on b", cat).sql
+    nested = compile_query("find a = word, b = word where a depends on b or b depends on a", cat).sql
     assert "SELECT DISTINCT" in top and "EXISTS" not in top
     assert "EXISTS" in nested
+    # token layer carrying the basic tree: parent = head, label = deprel (no edge table needed)
+    tree = compile_query('find a = token, b = token where a depends on b as "nsubj"', cat)
+    assert '"dep"' not in tree.sql and '"parent"' in tree.sql
+    edges = {(s, d) for s, d in con.execute('SELECT src, dst FROM "dep" WHERE label = \'nsubj\'').fetchall()}
+    hits = run_query(con, cat, 'find a = token, b = token where a depends on b as "nsubj"').to_arrow()
+    assert set(zip(hits.column("a.id").to_pylist(), hits.column("b.id").to_pylist())) == edges
