@@ -165,6 +165,7 @@ class Binding:
     layer: str
     cond: Cond | None = None
     pos: Pos = field(default=NOWHERE, compare=False)
+    layer_pos: Pos = field(default=NOWHERE, compare=False)
 
 
 @dataclass(frozen=True)

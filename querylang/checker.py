@@ -105,10 +105,10 @@ class _Checker:
         node_layers = [n for n, l in self.all_layers.items() if l.kind != "edges"]
         if info is None:
             hint = suggest(binding.layer, node_layers) or "layers: " + ", ".join(sorted(node_layers))
-            self.fail(f"unknown layer {binding.layer!r}", binding.pos, hint)
+            self.fail(f"unknown layer {binding.layer!r}", binding.layer_pos, hint)
         if info.kind == "edges":
             self.fail(f"{binding.layer!r} is an edge set, not a layer of nodes; use it with "
-                      f"`depends on ... via {binding.layer}`", binding.pos)
+                      f"`depends on ... via {binding.layer}`", binding.layer_pos)
         return info
 
     def bind(self, bindings: tuple[ast.Binding, ...], scope: dict[str, LayerInfo]) -> dict[str, LayerInfo]:

@@ -127,10 +127,10 @@ class ToAst(Transformer):
     def binding(self, name, layer, *conds):
         conds = tuple(c for c in conds if c is not None)
         cond = None if not conds else conds[0] if len(conds) == 1 else ast.And(conds)
-        return ast.Binding(str(name), layer, cond, _pos(name))
+        return ast.Binding(str(name), layer.text, cond, _pos(name), layer.pos)
 
     def layer_name(self, *parts):
-        return ".".join(str(p) for p in parts)
+        return ast.Path(tuple(str(p) for p in parts), _pos(parts[0]))
 
     def where_clause(self, cond):
         return ("where", cond)
@@ -218,7 +218,7 @@ class ToAst(Transformer):
         return ("label", ast.Literal(unquote(str(string)), None, _pos(string)))
 
     def via(self, name):
-        return ("via", name)
+        return ("via", name.text)
 
     def in_time(self, token):
         return ("in_time", True)

@@ -52,7 +52,7 @@ def test_names_resolve_to_refs():
 def test_unknown_layer_suggests():
     err = error("find t = tokn(form = \"a\")")
     assert "unknown layer 'tokn'" in err.message and "did you mean: token" in err.hint
-    assert (err.line, err.column) == (1, 6)
+    assert (err.line, err.column) == (1, 10)                       # under the layer name
 
 
 def test_unknown_attribute_suggests():

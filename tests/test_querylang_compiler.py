@@ -113,3 +113,18 @@ def test_dependency_through_edge_table_or_tree_columns(corpus):
     edges = {(s, d) for s, d in con.execute('SELECT src, dst FROM "dep" WHERE label = \'nsubj\'').fetchall()}
     hits = run_query(con, cat, 'find a = token, b = token where a depends on b as "nsubj"').to_arrow()
     assert set(zip(hits.column("a.id").to_pylist(), hits.column("b.id").to_pylist())) == edges
+
+
+def test_names_that_are_sql_keywords_stay_identifiers():
+    from tests.querylang_corpus import CorpusBuilder
+    b = CorpusBuilder()
+    b.layer("group", "token")
+    b.layer("sentence", "span")
+    d = b.doc("d", "x y")
+    b.node("sentence", d, 0, 3, sent_id="s1")
+    b.node("group", d, 0, 1, order="1", **{"from": "a"})
+    b.node("group", d, 2, 3, order="2", **{"from": "b"})
+    con, cat = b.build()
+    hits = run_query(con, cat, 'find select = group(order = "1") where select.from != "b" show select.order')
+    assert hits.to_arrow().column("select.order").to_pylist() == ["1"]
+    assert hits.to_arrow().column("select.text").to_pylist() == ["x"]
