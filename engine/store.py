@@ -97,6 +97,7 @@ class Store:
     def __init__(self, root: Path) -> None:
         self.root = Path(root)
         self._catalog_cache: dict[str, LayerInfo] | None = None
+        self._memo: dict[tuple, list[tuple]] = {}
 
     # -- opening -----------------------------------------------------------------
     @classmethod
@@ -128,8 +129,18 @@ class Store:
 
     # -- reading the catalog -----------------------------------------------------------
     def _rows(self, sql: str, params: list | None = None) -> list[tuple]:
-        with self.catalog_connection() as con:
-            return con.execute(sql, params or []).fetchall()
+        """Catalog rows, remembered until this Store commits a batch.
+
+        Opening the catalog costs ~15 ms, and an import asks it many small questions;
+        the catalog changes only through :meth:`batch`, which forgets the answers.
+        """
+        key = (sql, tuple(params or ()))
+        rows = self._memo.get(key)
+        if rows is None:
+            with self.catalog_connection() as con:
+                rows = con.execute(sql, params or []).fetchall()
+            self._memo[key] = rows
+        return rows
 
     def documents(self) -> list[DocInfo]:
         return [DocInfo(*r) for r in self._rows(
@@ -222,6 +233,7 @@ class Store:
             raise
         finally:
             self._catalog_cache = None
+            self._memo.clear()
 
 
 class Batch:
@@ -238,6 +250,7 @@ class Batch:
             "SELECT key, value FROM meta WHERE key IN ('next_id', 'next_base', 'next_chain')")}
         self._docs: list[DocInfo] = []
         self._doc_names: dict[str, DocInfo] = {}
+        self._stored_docs: dict[str, DocInfo] | None = None
         self._stored_names = {n for (n,) in store._rows("SELECT name FROM documents")}
         self._doc_attrs: list[tuple[int, str, str]] = []
         self._writers: dict[str, tuple[str, str, pq.ParquetWriter, Path]] = {}
@@ -266,8 +279,13 @@ class Batch:
         return first
 
     def existing_document(self, name: str) -> DocInfo | None:
+        """A document of this batch or of the corpus (the corpus's are read once per batch)."""
         staged = self._doc_names.get(name)
-        return staged if staged is not None else self.store.document(name)
+        if staged is not None:
+            return staged
+        if self._stored_docs is None:
+            self._stored_docs = {d.name: d for d in self.store.documents()}
+        return self._stored_docs.get(name)
 
     def add_document(self, name: str, text: str, attrs: dict[str, str] | None = None) -> DocInfo:
         """A new document at the end of the global coordinate line."""
@@ -433,15 +451,26 @@ class Batch:
                 for layer in sorted(self._replaced):
                     old += [p for (p,) in con.execute("SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
                     con.execute("DELETE FROM parts WHERE layer = ?", [layer])
-                for d in self._docs:
-                    con.execute("INSERT INTO documents VALUES (?, ?, ?, ?, ?, NULL)",
-                                [d.doc, d.name, d.base, d.length, d.text])
+                if self._docs:   # as one Arrow table: row-by-row inserts cost seconds for thousands of documents
+                    docs = pa.table({"doc": pa.array([d.doc for d in self._docs], pa.int32()),
+                                     "name": [d.name for d in self._docs], "base": [d.base for d in self._docs],
+                                     "length": [d.length for d in self._docs], "text": [d.text for d in self._docs]})
+                    con.register("new_documents", docs)
+                    con.execute("INSERT INTO documents SELECT doc, name, base, length, text, NULL FROM new_documents")
+                    con.unregister("new_documents")
                 for doc, seconds in self._durations.items():
                     con.execute("UPDATE documents SET duration = ? WHERE doc = ?", [seconds, doc])
                 if self._doc_attrs:
-                    con.executemany("INSERT INTO doc_attrs VALUES (?, ?, ?)", self._doc_attrs)
+                    attrs = pa.table({"doc": pa.array([a[0] for a in self._doc_attrs], pa.int32()),
+                                      "key": [a[1] for a in self._doc_attrs], "value": [a[2] for a in self._doc_attrs]})
+                    con.register("new_doc_attrs", attrs)
+                    con.execute("INSERT INTO doc_attrs SELECT * FROM new_doc_attrs")
+                    con.unregister("new_doc_attrs")
+                with_parts = {p[0] for p in parts}
                 for name, (kind, props) in self._layer_props.items():
-                    con.execute("INSERT OR REPLACE INTO layers VALUES (?, ?, ?)", [name, kind, json.dumps(props)])
+                    # a layer declared but left empty (no empty nodes in the file, say) is not listed
+                    if name in with_parts or con.execute("SELECT 1 FROM layers WHERE name = ?", [name]).fetchall():
+                        con.execute("INSERT OR REPLACE INTO layers VALUES (?, ?, ?)", [name, kind, json.dumps(props)])
                 if parts:
                     con.executemany("INSERT INTO parts VALUES (?, ?, ?, ?)", parts)
                 for src, sha in self._sources:

@@ -271,13 +271,13 @@ class ConlluImporter:
                 WINDOW w AS (PARTITION BY s ORDER BY n ROWS UNBOUNDED PRECEDING))""")
         con.unregister("com_arrow")
         # comments after the first token line of their sentence, and comments with no sentence
-        first_tok = dict(zip(self.s[self.seg_starts].tolist(), self.n[self.seg_starts].tolist()))
-        for cn, cs in con.execute("SELECT n, s FROM com ORDER BY n").fetchall():
-            ft = first_tok.get(cs)
-            if ft is None:
-                problems.items.append((cn, cs, "comment lines with no token lines after them"))
-            elif cn > ft:
-                problems.items.append((cn, cs, "a comment line inside a sentence (comments go before the token lines)"))
+        tok_s, tok_first_n = self.s[self.seg_starts], self.n[self.seg_starts]
+        at = np.searchsorted(tok_s, s)
+        found = (at < len(tok_s)) & (tok_s[np.minimum(at, max(len(tok_s) - 1, 0))] == s) if len(tok_s) else \
+            np.zeros(len(s), bool)
+        first = np.where(found, tok_first_n[np.minimum(at, max(len(tok_s) - 1, 0))] if len(tok_s) else 0, 0)
+        problems.add(~found, n, s, "comment lines with no token lines after them")
+        problems.add(found & (n > first), n, s, "a comment line inside a sentence (comments go before the token lines)")
 
     def _check_new_documents(self) -> None:
         """A document that already has these layers needs --prefix: say so before anything else."""
@@ -887,18 +887,22 @@ def _flatten(prefix: str, column: pa.Array) -> dict[str, pa.Array]:
     parent = parent[has_value]
     if len(kv) == 0:
         return {}
-    keys = pc.list_element(kv, 0)
-    values = pc.list_element(kv, 1)
+    keys = pc.list_element(kv, 0).dictionary_encode()
+    values = pc.list_element(kv, 1).cast(pa.string())
+    codes = _np(keys.indices)
+    order = np.argsort(codes, kind="stable")
+    bounds = np.searchsorted(codes[order], np.arange(len(keys.dictionary) + 1))
+    null = pa.scalar(None, pa.string())
     out: dict[str, pa.Array] = {}
-    for key in sorted(k for k in pc.unique(keys).to_pylist() if k):
-        sel = _np(pc.equal(keys, key))
-        rows = parent[sel]
-        vals = values.filter(pa.array(sel))
-        index = np.full(n, len(vals), np.int64)
-        index[rows] = np.arange(len(vals))
-        padded = pa.concat_arrays([vals.cast(pa.string()), pa.array([None], pa.string())])
-        col = padded.take(pa.array(index))
-        out[f"{prefix}.{key}"] = pc.if_else(pc.equal(col, ""), pa.scalar(None, pa.string()), col)
+    for code, key in sorted(enumerate(keys.dictionary.to_pylist()), key=lambda kv: kv[1]):
+        if not key:
+            continue
+        sel = order[bounds[code]:bounds[code + 1]]
+        vals = values.take(pa.array(sel))
+        index = np.full(n, len(sel), np.int64)
+        index[parent[sel]] = np.arange(len(sel))
+        col = pa.concat_arrays([vals, pa.array([None], pa.string())]).take(pa.array(index))
+        out[f"{prefix}.{key}"] = pc.if_else(pc.equal(col, ""), null, col)
     return out
 
 
