@@ -328,6 +328,25 @@ def basic_tree_edges(edge_set: str, la: LayerInfo, lb: LayerInfo) -> bool:
             and (edge_set == "dep" or edge_set.endswith(".dep")))
 
 
+MAX_OR_BRANCHES = 8
+
+
+def or_branches(where: ast.Cond | None, variables: set[str]) -> list[ast.Cond | None]:
+    """Split the first top-level ``or`` that relates variables into one condition per branch.
+
+    DuckDB cannot join on a disjunction (``a depends on b or b depends on a``) and would
+    pair every row with every row; one join per branch, combined with UNION, keeps each
+    branch an equality or range join.  UNION also removes a match found by two branches,
+    so the rows are the same as with the ``or``.
+    """
+    items = ast.conjuncts(where)
+    for i, item in enumerate(items):
+        if (isinstance(item, ast.Or) and len(item.items) <= MAX_OR_BRANCHES
+                and any(len(ast.vars_in(b) & variables) >= 2 for b in item.items)):
+            return [ast.And(tuple(items[:i] + [branch] + items[i + 1:])) for branch in item.items]
+    return [where]
+
+
 def _unit_of(e: ast.Expr) -> str | None:
     return e.unit if isinstance(e, ast.Literal) and e.unit in LENGTH_UNITS else None
 
@@ -405,10 +424,14 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     select.append(f"least({', '.join(starts)}) AS _hs" if len(starts) > 1 else f"{starts[0]} AS _hs")
     select.append(f"greatest({', '.join(ends)}) AS _he" if len(ends) > 1 else f"{ends[0]} AS _he")
 
-    frm, whr = sb.level(q.bindings, q.where, main)
-    if wheres:
-        whr = " AND ".join([whr] + wheres)
-    ctes = [f"m AS (SELECT {', '.join(select)} FROM {frm} WHERE {whr})"]
+    bodies = []
+    for where in or_branches(q.where, set(variables)):
+        scope = Scope(dict(main.aliases), dict(main.layers), list(main.own))
+        frm, whr = sb.level(q.bindings, where, scope)
+        if wheres:
+            whr = " AND ".join([whr] + wheres)
+        bodies.append(f"SELECT {', '.join(select)} FROM {frm} WHERE {whr}")
+    ctes = [f"m AS ({' UNION '.join(bodies)})"]
 
     # in every reading: keep groups whose matched readings are all the sentence's readings
     last = "m"

@@ -188,6 +188,14 @@ def test_text_relations(c, layer_pairs):
 
 
 @SETTINGS
+@given(corpora(), st.sampled_from(TEXT), st.sampled_from(TEXT), st.sampled_from(LAYERS), st.sampled_from(LAYERS))
+def test_or_between_relations(c, r1, r2, la, lb):
+    got = pairs(c, f"find a = {la}, b = {lb} where a {r1} b or (b {r2} a and not a {r1} b)")
+    want = expected(c, la, lb, lambda a, b: text_rel(c, r1, a, b) or text_rel(c, r2, b, a))
+    assert got == want
+
+
+@SETTINGS
 @given(corpora(), st.sampled_from(["precedes", "follows"]), st.integers(0, 3),
        st.sampled_from(["word", "chunk", "mention"]), st.sampled_from(["word", "chunk", "mention"]))
 def test_precedes_within_words(c, rel, n, la, lb):
