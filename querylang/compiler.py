@@ -506,28 +506,33 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
             continue
         cols.append(f"l._x{k}")
         names.append(item.label)
-    # keyword in context: N words before the first and after the last character of the hit
-    text0, base0, len0 = f"t0.{ident('text')}", f"t0.{ident('base')}", f"t0.{ident('length')}"
+    # keyword in context: N words before the first and after the last character of the hit.
+    # The word boundaries are found in their own CTE (x), before any document text is joined:
+    # carrying whole texts through the ASOF joins' sorts made listings ~5x slower.
+    text0, base0 = f"t0.{ident('text')}", f"t0.{ident('base')}"
     words = kwic_layer(checked)
     if words is not None and context > 0:
         w = ident(words.name)
         n = sb.param(int(context) - 1)
         dcol, ocol, scol, ecol, icol = (ident(x) for x in ("doc", "ord", "start", "end", "id"))
-        joins += [
+        kw_joins = " ".join([
+            f"LEFT JOIN (SELECT {dcol}, {ident('base')}, {ident('length')} FROM {d}) AS b0 ON b0.{dcol} = l._doc0",
             f"ASOF LEFT JOIN {w} AS wl ON wl.{dcol} = l._doc0 AND l._hs >= wl.{ecol}",
             f"LEFT JOIN {w} AS wl2 ON wl2.{dcol} = l._doc0 AND wl2.{ocol} = wl.{ocol} - {n}",
             f"ASOF LEFT JOIN {w} AS wr ON wr.{dcol} = l._doc0 AND l._he <= wr.{scol}",
             f"LEFT JOIN {w} AS wr2 ON wr2.{dcol} = l._doc0 AND wr2.{ocol} = wr.{ocol} + {n}",
-        ]
-        left_start = f"(CASE WHEN wl.{icol} IS NULL THEN l._hs ELSE coalesce(wl2.{scol}, {base0}) END)"
-        right_end = f"(CASE WHEN wr.{icol} IS NULL THEN l._he ELSE coalesce(wr2.{ecol}, {base0} + {len0}) END)"
+        ])
+        left_start = f"(CASE WHEN wl.{icol} IS NULL THEN l._hs ELSE coalesce(wl2.{scol}, b0.{ident('base')}) END)"
+        right_end = (f"(CASE WHEN wr.{icol} IS NULL THEN l._he "
+                     f"ELSE coalesce(wr2.{ecol}, b0.{ident('base')} + b0.{ident('length')}) END)")
+        ctes.append(f"x AS (SELECT l.*, {left_start} AS _ls, {right_end} AS _re FROM l {kw_joins})")
     else:
-        left_start, right_end = "l._hs", "l._he"
-    cols += [f"substr({text0}, CAST({left_start} - {base0} + 1 AS BIGINT), CAST(l._hs - {left_start} AS BIGINT))",
+        ctes.append("x AS (SELECT l.*, l._hs AS _ls, l._he AS _re FROM l)")
+    cols += [f"substr({text0}, CAST(l._ls - {base0} + 1 AS BIGINT), CAST(l._hs - l._ls AS BIGINT))",
              f"substr({text0}, CAST(l._hs - {base0} + 1 AS BIGINT), CAST(l._he - l._hs AS BIGINT))",
-             f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST({right_end} - l._he AS BIGINT))"]
+             f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST(l._re - l._he AS BIGINT))"]
     names += ["left", "match", "right"]
     select_out = ", ".join(f"{c} AS c{k}" for k, c in enumerate(cols))
-    sql = (f"WITH {', '.join(ctes)} SELECT {select_out} FROM l {' '.join(joins)} "
+    sql = (f"WITH {', '.join(ctes)} SELECT {select_out} FROM x AS l {' '.join(joins)} "
            f"ORDER BY {', '.join('l.' + x for x in order.split(', '))}")
     return SqlQuery(sql, sb.params, names, "hits")
