@@ -290,12 +290,13 @@ def parse(text: str) -> ast.Query:
             query=text,
             line=_last_line(text) if err.token.type == "$END" or not err.line or err.line < 1 else err.line,
             column=_last_column(text) if err.token.type == "$END" or not err.column or err.column < 1 else err.column,
+            hint=_hint(text, err.pos_in_stream if err.token.type != "$END" else None),
         ) from None
     except UnexpectedCharacters as err:
         allowed = _expected(err.allowed) if err.allowed else "something else"
         raise StrataError(
             f"unexpected character {text[err.pos_in_stream]!r}; expected one of: {allowed}",
-            query=text, line=err.line, column=err.column,
+            query=text, line=err.line, column=err.column, hint=_hint(text, err.pos_in_stream),
         ) from None
     except UnexpectedEOF as err:
         raise StrataError(
@@ -309,6 +310,23 @@ def parse(text: str) -> ast.Query:
         return ToAst().transform(tree)
     except VisitError as err:
         raise StrataError(f"cannot read the query: {err.orig_exc}", query=text, line=1, column=1) from None
+
+
+# Habits from other languages, and what to write here instead.
+HINTS = [("==", "compare with a single ="), ("&&", "write `and`"), ("||", "write `or`"),
+         ("!", "write `not`, or != for unequal"), ("'", 'quote text with double quotes: "..."'),
+         (";", "a query is one statement; no ; is needed")]
+
+
+def _hint(text: str, offset: int | None) -> str | None:
+    """A suggestion for a common slip at the error position, if there is one."""
+    if offset is None:
+        return None
+    at = text[max(offset - 1, 0):offset + 2]
+    for written, hint in HINTS:
+        if written in at:
+            return hint
+    return None
 
 
 def _last_line(text: str) -> int:

@@ -124,3 +124,14 @@ def test_caret_is_under_the_error():
 def test_empty_query():
     with pytest.raises(StrataError, match="empty query"):
         parse("   ")
+
+
+@pytest.mark.parametrize("text, hint", [
+    ('find w = word(form == "a")', "single ="),
+    ("find w = word(form = 'a')", "double quotes"),
+    ('find w = word(form = "a" && lemma = "b")', "and"),
+])
+def test_common_slips_get_a_hint(text, hint):
+    with pytest.raises(StrataError) as info:
+        parse(text)
+    assert hint in (info.value.hint or "")
