@@ -119,7 +119,7 @@ def run_suite(target: Path, suite: list[SuiteEntry], repeat: int) -> list[dict]:
             # On the same connection as the SQL, so both sides pay the same set-up.
             q_times, hits = _timed(lambda: run_query(con, corpus.store, e.query), repeat)
         except StrataError as err:
-            r.update(status="skipped", reason=str(err).splitlines()[-1])
+            r.update(status="skipped", reason=err.message)
             results.append(r)
             continue
         s_times, sql_rows = _timed(lambda: con.execute(e.sql).fetchall(), repeat)
