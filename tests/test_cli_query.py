@@ -236,8 +236,6 @@ def test_unknown_layer_suggests_the_nearest(small):
     assert "did you mean" in done.stderr and "word" in done.stderr.split("did you mean")[1]
 
 
-@pytest.mark.xfail(reason="reported: the caret for an unknown layer is under the variable "
-                          "(column 6 of `find w = wrod`), not under the layer name (column 10)", strict=True)
 def test_unknown_layer_caret_under_the_name(small):
     query = "find w = wrod"
     done = strata("query", small[0], query)
