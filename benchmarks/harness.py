@@ -7,8 +7,10 @@ For each scale the harness generates (or reuses) a synthetic corpus, imports it,
 sides of every pair, checks that they return the same rows (as a multiset) and reports the
 times. A disagreement is a failure: exit code 1.
 
-    python -m benchmarks.harness [--scales 1e5,1e6] [--formats conllu,brackets,tiers,spans]
-                                 [--repeat 3] [--work DIR] [--json out.json]
+    python -m benchmarks.harness [queries] [--scales 1e5,1e6] [--formats conllu,brackets,tiers,spans]
+                                 [--repeat 3] [--work DIR] [--reuse] [--json out.json]
+    python -m benchmarks.harness import ...     (the import benchmark, benchmarks.import_bench)
+    python -m benchmarks.harness synth ...      (the corpus generator, benchmarks.synth)
 """
 from __future__ import annotations
 
@@ -179,7 +181,23 @@ def _formats(text: str) -> list[str]:
 
 
 def main(argv: list[str] | None = None) -> int:
-    ap = argparse.ArgumentParser(prog="python -m benchmarks.harness", description=__doc__.split("\n\n")[0])
+    """The query benchmark; a first word `import` or `synth` runs those benchmarks instead."""
+    argv = sys.argv[1:] if argv is None else list(argv)
+    if argv[:1] == ["import"]:
+        from benchmarks import import_bench
+        return import_bench.main(argv[1:])
+    if argv[:1] == ["synth"]:
+        return synth.main(argv[1:])
+    if argv[:1] == ["queries"]:
+        argv = argv[1:]
+    return queries_main(argv)
+
+
+def queries_main(argv: list[str]) -> int:
+    ap = argparse.ArgumentParser(prog="python -m benchmarks.harness [queries]",
+                                 description=__doc__.split("\n\n")[0],
+                                 epilog="Other benchmarks: `import` (see benchmarks.import_bench) "
+                                        "and `synth` (see benchmarks.synth) as the first word.")
     ap.add_argument("--scales", type=_scales, default=[100_000], help="token counts, e.g. 1e5,1e6")
     ap.add_argument("--formats", type=_formats, default=list(ALL_FORMATS),
                     help="which layers to import (default all)")

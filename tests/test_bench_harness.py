@@ -5,6 +5,8 @@ from the documented semantics (querylang/compiler.py docstring; Allen 1983 for t
 """
 from __future__ import annotations
 
+import re
+
 import pytest
 
 from benchmarks import harness
@@ -49,3 +51,10 @@ def test_a_query_without_its_sql_is_refused(tmp_path, capsys):
     (tmp_path / "lonely.query").write_text("find t = token count\n")
     assert harness.main(["--queries", str(tmp_path), "--work", str(tmp_path / "w")]) == 2
     assert "lonely.query: no hand-written lonely.sql" in capsys.readouterr().err
+
+
+def test_first_word_selects_the_other_benchmarks(tmp_path, capsys):
+    assert harness.main(["synth", "--tokens", "200", "--out", str(tmp_path), "--seed", "2"]) == 0
+    assert (tmp_path / "manifest.json").exists() and re.match(r"[\d,]+ tokens, ", capsys.readouterr().out)
+    assert harness.main(["import", "--tokens", "10", "--data", str(tmp_path / "absent")]) == 2
+    assert "treebank not found" in capsys.readouterr().err
