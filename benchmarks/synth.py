@@ -116,7 +116,10 @@ _NEG_MWT = {"do": ("don't", "D OW1 N T"), "does": ("doesn't", "D AH1 Z AH0 N T")
 _CCONJS = [("and", "AH0 N D"), ("but", "B AH1 T"), ("or", "AO1 R")]
 _SCONJS = [("because", "B IH0 K AH1 Z"), ("when", "W EH1 N"), ("if", "IH1 F"), ("while", "W AY1 L")]
 _FILLERS = [("um", "AH1 M"), ("uh", "AH1")]
-EVENT_LABELS = ["breath", "cough", "laughter", "lipsmack"]
+SILENT_EVENTS = ["breath", "lipsmack"]
+"""Events inside silent pauses (events tier only)."""
+VOICED_EVENTS = [("laughter", "{laugh}"), ("cough", "{cough}")]
+"""Events between turns that an aligner also writes into the words tier, in braces."""
 GENRES = ["booking", "timetable", "complaint", "lost_property"]
 
 
@@ -738,8 +741,15 @@ class ShardWriter:
         if bits(3) == 0 and d > 300:
             e0 = t + 50 + bits(6)
             self.tier_events.append(f"{doc}\tevents\t{_ms(e0)}\t{_ms(e0 + d // 2)}\t"
-                                    f"{EVENT_LABELS[bits(2)]}\t{spk}\n")
-        self.t = t + d
+                                    f"{SILENT_EVENTS[bits(1)]}\t{spk}\n")
+        t += d
+        if bits(5) == 0:  # a laugh or cough after the pause, before the next sentence
+            label, word = VOICED_EVENTS[bits(1)]
+            e = t + 250 + bits(9)
+            self.tier_events.append(f"{doc}\tevents\t{_ms(t)}\t{_ms(e)}\t{label}\t{spk}\n")
+            words.append(f"{doc}\twords\t{_ms(t)}\t{_ms(e)}\t{word}\t{spk}\n")
+            t = e
+        self.t = t
         for label, tok, group, kind in self.disfl:
             w = tok_word[tok]
             g = f"g{group}" if group else ""
