@@ -211,8 +211,16 @@ class SqlBuilder:
             out = (f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')} AND "
                    f"{c(a, 'doc')} = {c(b, 'doc')}")
             if r.within is not None:
+                # a precedes b, so distance <= N is a plain range bound (DuckDB can use it in
+                # the join; about 30% faster than testing distance(a, b), benchmarks/queries/13)
                 unit = r.within.unit or "words"
-                out += f" AND {self.distance(a, b, la, lb, unit)} <= {self.param(r.within.value)}"
+                n = self.param(r.within.value)
+                if unit == "chars":
+                    out += f" AND {c(b, 'start')} <= {c(a, 'end')} + {n}"
+                else:
+                    _, last_a = ordinals(la, unit)
+                    first_b, _ = ordinals(lb, unit)
+                    out += f" AND {c(b, first_b)} <= {c(a, last_a)} + {n} + 1"
             return out + ")"
         if name == "directly precedes":
             ref = _adjacency_layer(la, lb)

@@ -207,6 +207,12 @@ def test_precedes_within_words(c, rel, n, la, lb):
         d = words_between(c, a, b)
         return d is not None and d <= n
     assert got == expected(c, la, lb, test)
+    got = pairs(c, f"find a = {la}, b = {lb} where a {rel} b within {n} chars")
+
+    def near(a, b):
+        first, second = (a, b) if rel == "precedes" else (b, a)
+        return text_rel(c, rel, a, b) and second["start"] - first["end"] <= n
+    assert got == expected(c, la, lb, near)
 
 
 @SETTINGS
