@@ -25,6 +25,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from benchmarks import synth
+from engine.errors import StrataError
 
 QUERIES = Path(__file__).resolve().parent / "queries"
 DEFAULT_WORK = Path("strata-bench")
@@ -38,7 +39,7 @@ class SuiteEntry:
     sql: str
 
 
-class BenchError(Exception):
+class BenchError(StrataError):
     """A problem with the harness's input (suite files, options): exit code 2."""
 
 

@@ -30,13 +30,14 @@ import time
 from pathlib import Path
 
 from benchmarks.synth import token_count_arg
+from engine.errors import StrataError
 
 GOAL_RATIO = 3.0
 DEFAULT_DATA = Path(__file__).resolve().parents[1].parent / "shared" / "data" / "ud-english-gum"
 COPY_SUFFIX = "__copy{}"
 
 
-class BenchError(Exception):
+class BenchError(StrataError):
     """A problem with the benchmark's input (missing treebank, bad option): exit code 2."""
 
 
