@@ -611,61 +611,83 @@ class ConlluImporter:
 
     # -- mentions --------------------------------------------------------------------------
     def _mentions(self) -> None:
-        con = self.con
+        """Pair the MISC ``Entity`` brackets: ``(id-...`` opens, ``id)`` closes, ``(id-...)`` is one word.
+
+        Vectorised: every ``(`` starts an item and every ``)`` ends one, so marking both and
+        splitting gives the items in order. The brackets of one id in one document pair by
+        nesting level: the k-th opening at level L closes with the k-th closing at level L.
+        """
+        self.M = None
         w_rows = self.W["rows"]
         misc = self.cols["misc"].take(pa.array(w_rows))
         has = _np(pc.match_substring(misc, "Entity="))
-        k = np.flatnonzero(has)
-        value = pc.extract_regex(misc.filter(pa.array(has)), r"(?:^|\|)Entity=(?P<v>[^|]*)")
-        con.register("ent_arrow", pa.table({
-            "n": self.n[w_rows[k]], "s": self.s[w_rows[k]], "d": self.d[w_rows[k]], "widx": k.astype(np.int64),
-            "value": pc.struct_field(value, [0])}))
-        con.execute(f"""
-            CREATE OR REPLACE TABLE ent AS
-            SELECT n, s, d, widx, item, i, value,
-                   CASE WHEN starts_with(item, '(') AND ends_with(item, ')') THEN 'single'
-                        WHEN starts_with(item, '(') THEN 'open' ELSE 'close' END AS typ,
-                   CASE WHEN starts_with(item, '(') THEN split_part(trim(item, '()'), '-', 1)
-                        ELSE rtrim(item, ')') END AS key,
-                   trim(item, '()') AS spec
-            FROM (SELECT n, s, d, widx, value, unnest(items) AS item, generate_subscripts(items, 1) AS i FROM (
-                    SELECT *, regexp_extract_all(value, {_q(_ITEM_RE)}) AS items FROM ent_arrow))""")
-        con.unregister("ent_arrow")
-        bad = con.execute("""
-            SELECT min(n), any_value(value) FROM (SELECT n, value, string_agg(item, '' ORDER BY i) AS joined
-                FROM ent GROUP BY n, value) WHERE joined <> value""").fetchall()[0]
-        if bad[0] is not None:
-            self._mention_problem(bad[0], f"cannot read the Entity value {bad[1]!r} "
-                                          "(expected '(id-...', 'id)' or '(id-...)')")
-        # brackets of one id in one document pair by nesting level, in order
-        con.execute("""
-            CREATE OR REPLACE TABLE ev AS
-            SELECT *, CASE WHEN typ = 'close' THEN r + 1 ELSE r END AS lvl FROM (
-                SELECT *, sum(CASE typ WHEN 'open' THEN 1 WHEN 'close' THEN -1 ELSE 0 END)
-                          OVER (PARTITION BY d, key ORDER BY n, i ROWS UNBOUNDED PRECEDING) AS r
-                FROM ent WHERE typ <> 'single')""")
-        con.execute("CREATE OR REPLACE TABLE ev2 AS SELECT *, row_number() OVER "
-                    "(PARTITION BY d, key, lvl, typ ORDER BY n, i) AS k FROM ev")
-        neg = con.execute("SELECT min(n), any_value(key) FROM ev2 WHERE lvl <= 0").fetchall()[0]
-        if neg[0] is not None:
-            self._mention_problem(neg[0], f"entity bracket '{neg[1]})' closes a mention that was never opened")
-        con.execute("""
-            CREATE OR REPLACE TABLE pairs AS
-            SELECT row_number() OVER (ORDER BY n_open, i) AS pid, * FROM (
-                SELECT o.n AS n_open, o.i, o.s AS s_open, o.widx AS w0, c.widx AS w1, c.s AS s_close, o.spec, o.d,
-                       o.key, c.n AS n_close
-                FROM (SELECT * FROM ev2 WHERE typ = 'open') o
-                LEFT JOIN (SELECT * FROM ev2 WHERE typ = 'close') c USING (d, key, lvl, k)
-                UNION ALL
-                SELECT n, i, s, widx, widx, s, spec, d, key, n FROM ent WHERE typ = 'single')""")
-        unclosed = con.execute("SELECT min(n_open), any_value(key) FROM pairs WHERE w1 IS NULL").fetchall()[0]
-        if unclosed[0] is not None:
-            self._mention_problem(unclosed[0], f"entity bracket '({unclosed[1]}' opened here is never closed")
-        crossing = con.execute("SELECT min(n_close), any_value(key) FROM pairs WHERE s_close <> s_open").fetchall()[0]
-        if crossing[0] is not None:
-            self._mention_problem(crossing[0], f"entity mention '{crossing[1]}' closes in another sentence "
-                                               "than it opened")
-        con.execute("DELETE FROM pairs WHERE w1 IS NULL OR s_close <> s_open")
+        tok_of_value = np.flatnonzero(has)
+        if not len(tok_of_value):
+            return
+        value = pc.struct_field(pc.extract_regex(misc.filter(pa.array(has)), r"(?:^|\|)Entity=(?P<v>[^|]*)"), [0])
+        marked = pc.replace_substring(pc.replace_substring(pc.fill_null(value, ""), "(", "|("), ")", ")|")
+        items = pc.split_pattern(marked, "|")
+        parent = _np(pc.list_parent_indices(items))
+        flat = items.flatten()
+        keep = _np(pc.not_equal(flat, ""))
+        flat, parent = flat.filter(pa.array(keep)), parent[keep]
+        tk = tok_of_value[parent]                                  # word index (in the block) of each item
+        line = self.n[w_rows[tk]]
+        opens = _np(pc.starts_with(flat, "("))
+        closes = _np(pc.ends_with(flat, ")"))
+        inner = pc.utf8_trim(flat, "()")
+        stray = (~opens & ~closes) | _np(pc.equal(inner, ""))
+        if stray.any():
+            r = int(np.flatnonzero(stray)[0])
+            self._mention_problem(int(line[r]), f"cannot read the Entity value {value[int(parent[r])].as_py()!r} "
+                                                "(expected '(id-...', 'id)' or '(id-...)')")
+            ok = ~stray
+            flat, parent, tk, line, opens, closes = (x.filter(pa.array(ok)) if isinstance(x, pa.Array) else x[ok]
+                                                     for x in (flat, parent, tk, line, opens, closes))
+            inner = pc.utf8_trim(flat, "()")
+        single = opens & closes
+        key = pc.if_else(pa.array(opens), pc.list_element(pc.split_pattern(inner, "-", max_splits=1), 0), inner)
+        d = self.d[w_rows[tk]]
+        code = _np(pc.binary_join_element_wise(pa.array(d).cast(pa.string()), key, "\x1f").dictionary_encode().indices)
+        # nesting level per (document, id), in text order
+        ev = np.flatnonzero(~single)
+        order = ev[np.argsort(code[ev], kind="stable")]
+        c = code[order]
+        delta = np.where(opens[order], 1, -1)
+        g0 = np.flatnonzero(np.r_[True, c[1:] != c[:-1]]) if len(c) else np.zeros(0, np.int64)
+        r = _seg_cumsum(delta, g0, np.diff(np.r_[g0, len(c)])) if len(c) else delta
+        lvl = np.where(delta == 1, r, r + 1)
+        bad = lvl <= 0
+        if bad.any():
+            first = order[bad][np.argmin(line[order[bad]])]
+            self._mention_problem(int(line[first]), f"entity bracket '{key[int(first)].as_py()})' closes a mention "
+                                                    "that was never opened")
+        o_idx, c_idx = order[(delta == 1)], order[(delta == -1) & ~bad]
+        o_key = _pair_keys(code[o_idx], lvl[delta == 1])
+        c_key = _pair_keys(code[c_idx], lvl[(delta == -1) & ~bad])
+        c_sort = np.argsort(c_key, kind="stable")
+        at = np.searchsorted(c_key[c_sort], o_key)
+        matched = (at < len(c_key)) & (c_key[c_sort][np.minimum(at, max(len(c_key) - 1, 0))] == o_key) \
+            if len(c_key) else np.zeros(len(o_key), bool)
+        if (~matched).any():
+            first = o_idx[~matched][np.argmin(line[o_idx[~matched]])]
+            self._mention_problem(int(line[first]), f"entity bracket '({key[int(first)].as_py()}' opened here is "
+                                                    "never closed")
+        o_idx = o_idx[matched]
+        closing = c_idx[c_sort][at[matched]]
+        s_idx = np.flatnonzero(single)
+        first_item = np.r_[o_idx, s_idx]
+        last_item = np.r_[closing, s_idx]
+        w0, w1 = tk[first_item], tk[last_item]
+        cross = self.W["seg"][w0] != self.W["seg"][w1]
+        if cross.any():
+            k = int(np.flatnonzero(cross)[np.argmin(line[last_item[cross]])])
+            self._mention_problem(int(line[last_item[k]]), f"entity mention '{key[int(first_item[k])].as_py()}' "
+                                                           "closes in another sentence than it opened")
+            ok = ~cross
+            first_item, w0, w1 = first_item[ok], w0[ok], w1[ok]
+        self.M = dict(item=first_item, w0=w0, w1=w1, d=d[first_item], spec=inner.take(pa.array(first_item)),
+                      key=key.take(pa.array(first_item)))
 
     def _mention_problem(self, line: int, message: str) -> None:
         if not self.opt.lenient:
@@ -815,52 +837,61 @@ class ConlluImporter:
         components are the groups by (document, entity id): a grouping gives the same
         components as a graph search, in one vectorised pass.
         """
-        con = self.con
-        n = con.execute("SELECT count(*) FROM pairs").fetchall()[0][0]
-        if n == 0:
+        M = self.M
+        if M is None or not len(M["item"]):
             return
-        specs = dict(con.execute("""
-            SELECT d, coalesce(last(value ORDER BY n) FILTER (WHERE key = 'global.Entity'), ?) FROM com GROUP BY d""",
-                                 [DEFAULT_ENTITY_FIELDS]).fetchall())
-        for d, *_ in self.doc_list:
-            specs.setdefault(d, DEFAULT_ENTITY_FIELDS)
-        first_id = self.batch.alloc_ids(n)
-        n_chains = con.execute("SELECT count(DISTINCT (d, split_part(key, '[', 1))) FROM pairs").fetchall()[0][0]
-        first_chain = self.batch.alloc_chains(n_chains)
-        selects = []
-        for spec in sorted(set(specs.values())):
+        n = len(M["item"])
+        w0, w1 = M["w0"], M["w1"]
+        start, end = tok["start"][w0], tok["end"][w1]
+        # ids in document order; chains numbered by first appearance
+        by_pos = np.lexsort((M["item"], -end, start))
+        ids = np.empty(n, np.int64)
+        ids[by_pos] = self.batch.alloc_ids(n) + np.arange(n)
+        entity = pc.list_element(pc.split_pattern(M["key"], "[", max_splits=1), 0)
+        chain_code = _np(pc.binary_join_element_wise(pa.array(M["d"]).cast(pa.string()), entity, "\x1f")
+                         .dictionary_encode().indices).astype(np.int64)
+        n_chains = int(chain_code.max()) + 1
+        chain = self.batch.alloc_chains(n_chains) + chain_code
+        in_chain = np.lexsort((M["item"], -end, start, chain_code))
+        first_flag = np.r_[True, chain_code[in_chain][1:] != chain_code[in_chain][:-1]]
+        starts = np.flatnonzero(first_flag)
+        pos_sorted = np.arange(n) - np.repeat(starts, np.diff(np.r_[starts, n]))
+        chain_pos = np.empty(n, np.int64)
+        chain_pos[in_chain] = pos_sorted
+        cols = {"id": ids, "doc": tok["doc"][w0], "start": start, "end": end, "sent": tok["sent"][w0],
+                "tok_first": tok["ord"][w0], "tok_last": tok["ord"][w1], "word_first": tok["word_first"][w0],
+                "word_last": tok["word_first"][w1], "entity": entity, "chain": chain, "chain_pos": chain_pos,
+                "first_mention": pa.array(chain_pos == 0)}
+        cols.update(self._entity_fields(M))
+        table = pa.table(cols).take(pa.array(by_pos))
+        self.report.add("mentions", self._stage(self.names["mention"], table))
+        self.report.add("chains", n_chains)
+
+    def _entity_fields(self, M: dict) -> dict[str, pa.Array]:
+        """The hyphen-separated fields named by each document's ``global.Entity`` comment."""
+        specs = dict(self.con.execute("""
+            SELECT d, last(value ORDER BY n) FROM com WHERE key = 'global.Entity' GROUP BY d""").fetchall())
+        doc_spec = np.array([specs.get(int(d), DEFAULT_ENTITY_FIELDS) for d in M["d"]], dtype=object) \
+            if specs else np.full(len(M["d"]), DEFAULT_ENTITY_FIELDS, dtype=object)
+        out: dict[str, list] = {}
+        n = len(M["d"])
+        for spec in sorted(set(doc_spec.tolist())):
             fields = spec.split("-")
-            docs = [d for d, sp in specs.items() if sp == spec]
-            cols = []
-            for k, name in enumerate(fields[1:], start=2):
+            rows = np.flatnonzero(doc_spec == spec)
+            parts = pc.split_pattern(M["spec"].take(pa.array(rows)), "-", max_splits=len(fields) - 1)
+            length = _np(pc.list_value_length(parts))
+            for k, name in enumerate(fields[1:], start=1):
                 col = "type" if name == "etype" else name
                 if col in _RESERVED | {"entity", "chain", "chain_pos", "first_mention"}:
                     col = "entity." + col
-                if k < len(fields):
-                    expr = f"nullif(string_split(p.spec, '-')[{k}], '')"
-                else:
-                    expr = f"nullif(array_to_string(string_split(p.spec, '-')[{k}:], '-'), '')"
-                cols.append(f"{expr} AS {_ident(col)}")
-            selects.append(f"SELECT p.*{''.join(', ' + c for c in cols)} FROM pairs p "
-                           f"WHERE p.d IN ({', '.join(str(int(d)) for d in docs)})")
-        con.register("tok_arrow", pa.table({"widx": np.arange(len(self.W["rows"])), "doc": tok["doc"],
-                                            "start": tok["start"], "end": tok["end"], "sent": tok["sent"],
-                                            "ord": tok["ord"], "word": tok["word_first"]}))
-        table = con.sql(f"""
-            SELECT *, chain_pos = 0 AS first_mention FROM (
-                SELECT {first_id} + row_number() OVER (ORDER BY t0.start, t1."end" DESC, p.pid) - 1 AS id,
-                       t0.doc, t0.start, t1."end", t0.sent, t0.ord AS tok_first, t1.ord AS tok_last,
-                       t0.word AS word_first, t1.word AS word_last, split_part(p.key, '[', 1) AS entity,
-                       {first_chain} + dense_rank() OVER (ORDER BY p.d, split_part(p.key, '[', 1)) - 1 AS chain,
-                       row_number() OVER (PARTITION BY p.d, split_part(p.key, '[', 1)
-                                          ORDER BY t0.start, t1."end" DESC, p.pid) - 1 AS chain_pos,
-                       p.* EXCLUDE (pid, n_open, i, s_open, w0, w1, s_close, spec, d, key, n_close)
-                FROM ({' UNION ALL BY NAME '.join(selects)}) p
-                JOIN tok_arrow t0 ON t0.widx = p.w0 JOIN tok_arrow t1 ON t1.widx = p.w1)
-            ORDER BY id""").to_arrow_table()
-        con.unregister("tok_arrow")
-        self.report.add("mentions", self._stage(self.names["mention"], table))
-        self.report.add("chains", n_chains)
+                has = length > k
+                vals = np.full(len(rows), None, dtype=object)
+                if has.any():
+                    vals[has] = pc.list_element(parts.filter(pa.array(has)), k).to_numpy(zero_copy_only=False)
+                target = out.setdefault(col, [None] * n)
+                for r, v in zip(rows.tolist(), vals.tolist()):
+                    target[r] = v if v != "" else None
+        return {k: pa.array(v, pa.string()) for k, v in out.items()}
 
     def close(self) -> None:
         """Wait for the staged parts to be written (re-raising a write error)."""
@@ -871,6 +902,20 @@ class ConlluImporter:
             self._writer.shutdown(wait=True)
             self.con.close()
         self.batch.set_meta("next_order", self.order)
+
+
+def _pair_keys(code: np.ndarray, level: np.ndarray) -> np.ndarray:
+    """One int64 per bracket: (document-and-id code, nesting level, rank among its kind there)."""
+    if not len(code):
+        return np.zeros(0, np.int64)
+    base = code.astype(np.int64) * (int(level.max()) + 2) + level
+    order = np.argsort(base, kind="stable")
+    b = base[order]
+    g = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
+    rank_sorted = np.arange(len(b)) - np.repeat(g, np.diff(np.r_[g, len(b)]))
+    rank = np.empty(len(b), np.int64)
+    rank[order] = rank_sorted
+    return base * (len(b) + 1) + rank
 
 
 def _flatten(prefix: str, column: pa.Array) -> dict[str, pa.Array]:
