@@ -663,8 +663,9 @@ class ConlluImporter:
             self._mention_problem(int(line[first]), f"entity bracket '{key[int(first)].as_py()})' closes a mention "
                                                     "that was never opened")
         o_idx, c_idx = order[(delta == 1)], order[(delta == -1) & ~bad]
-        o_key = _pair_keys(code[o_idx], lvl[delta == 1])
-        c_key = _pair_keys(code[c_idx], lvl[(delta == -1) & ~bad])
+        scale = (int(lvl.max()) + 2 if len(lvl) else 2, len(lvl) + 1)
+        o_key = _pair_keys(code[o_idx], lvl[delta == 1], scale)
+        c_key = _pair_keys(code[c_idx], lvl[(delta == -1) & ~bad], scale)
         c_sort = np.argsort(c_key, kind="stable")
         at = np.searchsorted(c_key[c_sort], o_key)
         matched = (at < len(c_key)) & (c_key[c_sort][np.minimum(at, max(len(c_key) - 1, 0))] == o_key) \
@@ -904,18 +905,22 @@ class ConlluImporter:
         self.batch.set_meta("next_order", self.order)
 
 
-def _pair_keys(code: np.ndarray, level: np.ndarray) -> np.ndarray:
-    """One int64 per bracket: (document-and-id code, nesting level, rank among its kind there)."""
+def _pair_keys(code: np.ndarray, level: np.ndarray, scale: tuple[int, int]) -> np.ndarray:
+    """One int64 per bracket: (document-and-id code, nesting level, rank among its kind there).
+
+    ``scale`` (levels, ranks) must be the same for openings and closings so that equal
+    triples give equal keys.
+    """
     if not len(code):
         return np.zeros(0, np.int64)
-    base = code.astype(np.int64) * (int(level.max()) + 2) + level
+    base = code.astype(np.int64) * scale[0] + level
     order = np.argsort(base, kind="stable")
     b = base[order]
     g = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
     rank_sorted = np.arange(len(b)) - np.repeat(g, np.diff(np.r_[g, len(b)]))
     rank = np.empty(len(b), np.int64)
     rank[order] = rank_sorted
-    return base * (len(b) + 1) + rank
+    return base * scale[1] + rank
 
 
 def _flatten(prefix: str, column: pa.Array) -> dict[str, pa.Array]:
