@@ -40,6 +40,7 @@ DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
 BLOCK_BYTES = 64 << 20
 COLUMNS = ["cid", "form", "lemma", "upos", "xpos", "feats", "head", "deprel", "deps", "misc"]
 _ITEM_RE = r"\(([^()]+)\)|\(([^()]+)|([^()]+)\)"
+_SHARED_COLUMNS = ("cid", "form", "head", "deps", "misc")
 _RESERVED = set(ANCHOR_COLUMNS) | {"ord", "sent_id", "text", "comments"}
 
 
@@ -206,7 +207,10 @@ class ConlluImporter:
             parts, n, s, d = parts.filter(pa.array(good)), n[good], s[good], d[good]
         flat = parts.flatten()
         m = len(n)
-        cols = {name: flat.take(pa.array(np.arange(i, 10 * m, 10, dtype=np.int64))) for i, name in enumerate(COLUMNS)}
+        # the columns every stage needs, for all rows; the others are taken once, for the rows written
+        cols = {name: flat.take(pa.array(np.arange(COLUMNS.index(name), 10 * m, 10, dtype=np.int64)))
+                for name in _SHARED_COLUMNS}
+        self._flat, self._rowmap = flat, np.arange(m, dtype=np.int64)
         self.cols, self.n, self.s, self.d = cols, n, s, d
         cid = cols["cid"]
         is_w = _np(pc.utf8_is_digit(cid))
@@ -434,9 +438,14 @@ class ConlluImporter:
             self._validate_cycles(_Problems())
         return len(self.n) > 0
 
+    def _col(self, name: str, rows: np.ndarray) -> pa.Array:
+        """Column ``name`` of the given token rows, straight from the split fields."""
+        return self._flat.take(pa.array(10 * self._rowmap[rows] + COLUMNS.index(name)))
+
     def _filter_rows(self, keep: np.ndarray) -> None:
         km = pa.array(keep)
         self.cols = {k: v.filter(km) for k, v in self.cols.items()}
+        self._rowmap = self._rowmap[keep]
         for name in ("n", "s", "d", "is_w", "is_m", "is_e", "cid_i", "a", "b", "head_i", "head_blank", "head_digit"):
             setattr(self, name, getattr(self, name)[keep])
         m = len(self.n)
@@ -728,12 +737,14 @@ class ConlluImporter:
         tok = {"id": self.id_tok + np.arange(n_tok), "doc": W["doc"], "start": W["start"], "end": W["end"],
                "sent": W["sent"], "tok_first": W["ord"], "tok_last": W["ord"], "word_first": W["word"],
                "word_last": W["word"], "ord": W["ord"]}
-        for name in ("cid", "form", "lemma"):
+        for name in ("cid", "form"):
             tok[name] = c[name].take(wr)
+        tok["lemma"] = self._col("lemma", W["rows"])
         for name in ("upos", "xpos", "feats"):
-            tok[name] = nul(c[name].take(wr))
+            tok[name] = nul(self._col(name, W["rows"]))
         tok["head_num"] = masked(self.head_i[W["rows"]])
-        for name in ("deprel", "deps", "misc"):
+        tok["deprel"] = nul(self._col("deprel", W["rows"]))
+        for name in ("deps", "misc"):
             tok[name] = nul(c[name].take(wr))
         tok["parent"] = masked(T["parent"])
         tok["depth"] = pa.array(T["depth"], mask=T["depth"] < 0).cast(pa.int32())
@@ -744,7 +755,7 @@ class ConlluImporter:
         # surface words
         ur = pa.array(U["rows"])
         is_mwt = U["is_mwt"]
-        mwt_fields = pc.binary_join_element_wise(*[c[k].take(ur) for k in COLUMNS[2:9]], "\t")
+        mwt_fields = pc.binary_join_element_wise(*[self._col(k, U["rows"]) for k in COLUMNS[2:9]], "\t")
         null_str = pa.scalar(None, pa.string())
         word = {"id": self.id_word + np.arange(len(U["rows"])), "doc": U["doc"], "start": U["start"], "end": U["end"],
                 "sent": U["sent"], "tok_first": U["tok_first"], "tok_last": U["tok_last"], "word_first": U["ord"],
@@ -758,9 +769,9 @@ class ConlluImporter:
         er = pa.array(E["rows"])
         empty = {"id": self.id_empty + np.arange(len(E["rows"])), "doc": E["doc"], "start": E["start"],
                  "end": E["end"], "sent": E["sent"], "cid": c["cid"].take(er), "form": c["form"].take(er),
-                 "lemma": c["lemma"].take(er)}
+                 "lemma": self._col("lemma", E["rows"])}
         for name in ("upos", "xpos", "feats", "deps", "misc"):
-            empty[name] = nul(c[name].take(er))
+            empty[name] = nul(self._col(name, E["rows"]))
         empty.update(_flatten("feats", empty["feats"]))
         empty.update(_flatten("misc", empty["misc"]))
         self.report.add("empty nodes", self._stage(N["empty"], pa.table(empty)))
@@ -874,8 +885,8 @@ class ConlluImporter:
             SELECT d, last(value ORDER BY n) FROM com WHERE key = 'global.Entity' GROUP BY d""").fetchall())
         doc_spec = np.array([specs.get(int(d), DEFAULT_ENTITY_FIELDS) for d in M["d"]], dtype=object) \
             if specs else np.full(len(M["d"]), DEFAULT_ENTITY_FIELDS, dtype=object)
-        out: dict[str, list] = {}
         n = len(M["d"])
+        pieces: dict[str, list[tuple[np.ndarray, pa.Array]]] = {}
         for spec in sorted(set(doc_spec.tolist())):
             fields = spec.split("-")
             rows = np.flatnonzero(doc_spec == spec)
@@ -886,13 +897,23 @@ class ConlluImporter:
                 if col in _RESERVED | {"entity", "chain", "chain_pos", "first_mention"}:
                     col = "entity." + col
                 has = length > k
-                vals = np.full(len(rows), None, dtype=object)
                 if has.any():
-                    vals[has] = pc.list_element(parts.filter(pa.array(has)), k).to_numpy(zero_copy_only=False)
-                target = out.setdefault(col, [None] * n)
-                for r, v in zip(rows.tolist(), vals.tolist()):
-                    target[r] = v if v != "" else None
-        return {k: pa.array(v, pa.string()) for k, v in out.items()}
+                    pieces.setdefault(col, []).append(
+                        (rows[has], pc.list_element(parts.filter(pa.array(has)), k).cast(pa.string())))
+                else:
+                    pieces.setdefault(col, [])
+        out: dict[str, pa.Array] = {}
+        null = pa.scalar(None, pa.string())
+        for col, chunks in pieces.items():
+            values = pa.concat_arrays([v for _, v in chunks] + [pa.array([None], pa.string())])
+            index = np.full(n, len(values) - 1, np.int64)
+            at = 0
+            for rows, v in chunks:
+                index[rows] = at + np.arange(len(v))
+                at += len(v)
+            column = values.take(pa.array(index))
+            out[col] = pc.if_else(pc.equal(column, ""), null, column)
+        return out
 
     def close(self) -> None:
         """Wait for the staged parts to be written (re-raising a write error)."""
