@@ -1,0 +1,9 @@
+"""pandas baseline for 15_mean_gap_by_speaker: consecutive words by ordinal, mean gap and count."""
+
+
+def run(layers):
+    w = layers.read("words", ["doc", "ord", "t_start", "t_end", "speaker"])
+    pairs = w.assign(next_ord=w.ord + 1).merge(w, left_on=["doc", "next_ord"], right_on=["doc", "ord"],
+                                               suffixes=("_a", "_b"))
+    pairs["gap"] = pairs.t_start_b - pairs.t_end_a
+    return pairs.groupby("speaker_b", dropna=False).gap.agg(["mean", "size"]).reset_index()
