@@ -38,6 +38,7 @@ from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, Batch
 FORMAT = "conllu"
 DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
 BLOCK_BYTES = 64 << 20
+PART_ROWS = 300_000
 COLUMNS = ["cid", "form", "lemma", "upos", "xpos", "feats", "head", "deprel", "deps", "misc"]
 _ITEM_RE = r"\(([^()]+)\)|\(([^()]+)|([^()]+)\)"
 _SHARED_COLUMNS = ("cid", "form", "head", "deps", "misc")
@@ -110,6 +111,7 @@ class ConlluImporter:
         self.n_part = 0
         self._writer = ThreadPoolExecutor(max_workers=1)
         self._writes: list = []
+        self._buffers: dict[str, list[pa.Table]] = {}
         self._declare()
 
     # -- set-up ------------------------------------------------------------------------
@@ -706,8 +708,21 @@ class ConlluImporter:
 
     # -- writing ---------------------------------------------------------------------------
     def _stage(self, layer: str, table: pa.Table) -> int:
+        """Buffer rows of ``layer``; a part is written per ~PART_ROWS rows, not per block or file."""
         if table.num_rows == 0:
             return 0
+        buf = self._buffers.setdefault(layer, [])
+        buf.append(table)
+        if sum(t.num_rows for t in buf) >= PART_ROWS:
+            self._flush(layer)
+        return table.num_rows
+
+    def _flush(self, layer: str) -> None:
+        buf = self._buffers.pop(layer, [])
+        if not buf:
+            return
+        # blocks may carry different FEATS/MISC keys: missing columns become NULL
+        table = pa.concat_tables(buf, promote_options="default") if len(buf) > 1 else buf[0]
         self.n_part += 1
         kind = self.batch.layer_kind(layer)
         required = EDGE_COLUMNS if kind == "edges" else ANCHOR_COLUMNS
@@ -725,7 +740,6 @@ class ConlluImporter:
         self._writes.append(self._writer.submit(pq.write_table, pa.Table.from_arrays(cols, names=names), path,
                                                 compression="zstd", row_group_size=122_880))
         self.batch.add_staged(layer, path, table.num_rows)
-        return table.num_rows
 
     def _write(self) -> None:
         N, W, U, E, S, T = self.names, self.W, self.U, self.E, self.S, self.T
@@ -916,8 +930,10 @@ class ConlluImporter:
         return out
 
     def close(self) -> None:
-        """Wait for the staged parts to be written (re-raising a write error)."""
+        """Write what is buffered and wait for the staged parts (re-raising a write error)."""
         try:
+            for layer in list(self._buffers):
+                self._flush(layer)
             for f in self._writes:
                 f.result()
         finally:
@@ -985,7 +1001,7 @@ def _blocks(path: Path) -> Iterator[tuple[bytes, int]]:
         while True:
             chunk = f.read(BLOCK_BYTES)
             data = carry + chunk
-            if not chunk:
+            if len(chunk) < BLOCK_BYTES:          # the end of the file: the rest is one block
                 if data:
                     yield data, line
                 return
