@@ -208,6 +208,28 @@ def demo(
     run_demo(corpus, out)
 
 
+@app.command()
+@user_errors
+def bench(
+    tokens: List[str] = typer.Option(["1e5"], "--tokens", help="corpus size in tokens (1e5, 1000000); repeat it"),
+    runs: int = typer.Option(5, "--runs", help="runs of each side per query; the median counts"),
+    json_file: Optional[Path] = typer.Option(None, "--json", help="write one record per query and scale"),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="draw latency against corpus size (PNG)"),
+    formats: str = typer.Option("conllu,brackets,tiers,spans", "--formats", help="layers to import"),
+    cache: Optional[Path] = typer.Option(None, "--cache", help="folder for synthetic inputs and corpora "
+                                         "(default $STRATA_BENCH_CACHE or ~/.cache/strata-bench)"),
+    fresh: bool = typer.Option(False, "--fresh", help="import again even when a cached import matches"),
+) -> None:
+    """Time the query suite against hand SQL, a scan floor and pandas on synthetic corpora."""
+    from benchmarks.harness import BenchError, _formats, _tokens, run_bench
+    try:
+        sizes = [n for t in tokens for n in _tokens(t)]
+        fmts = _formats(formats)
+    except Exception as e:   # argparse-style messages from the shared parsers
+        raise BenchError(str(e)) from None
+    raise typer.Exit(run_bench(sizes, runs, json_file, plot, fmts, work=cache, fresh=fresh))
+
+
 def main() -> None:  # pragma: no cover - entry point
     app()
 
