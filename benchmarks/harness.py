@@ -154,6 +154,8 @@ def run_entry(con, store, e: SuiteEntry, runs: int, tokens: int) -> dict:
         s_times, hits, s_peak = timed(lambda: run_query(con, store, e.query), runs)
         listing = strip_output(e.query)
         l_times, first, _ = timed(lambda: run_query(con, store, listing, limit=LIMIT), runs)
+        # the same without keyword-in-context columns: shows what the context costs
+        b_times, _, _ = timed(lambda: run_query(con, store, listing, limit=LIMIT, context=0), runs)
     except StrataError as err:
         r.update(status="skipped", reason=err.message)
         return r
@@ -168,6 +170,7 @@ def run_entry(con, store, e: SuiteEntry, runs: int, tokens: int) -> dict:
     r["compile_s"] = statistics.median(compile_times)
     r["limit20_s"] = statistics.median(l_times)
     r["limit20_rows"] = len(first)
+    r["limit20_no_context_s"] = statistics.median(b_times)
     r["strata_peak_mb"] = _mb(s_peak)
     r["rows"] = len(ours)
     differences = {}
@@ -246,7 +249,7 @@ def _pct(spread: float | None, median: float | None) -> str:
 
 
 TABLE_HEAD = ("query", "strata ms", "spread", "hand ms", "floor ms", "pandas ms", "/hand", "/floor",
-              "pandas x", "limit20 ms", "rows", "MB strata/pandas", "result")
+              "pandas x", "limit20 ms", "no ctx ms", "rows", "MB strata/pandas", "result")
 
 
 def table(report: dict) -> str:
@@ -262,13 +265,14 @@ def table(report: dict) -> str:
         rows = [TABLE_HEAD]
         for q in (r for r in report["records"] if r["tokens"] == sc["tokens"]):
             if q["status"] == "skipped":
-                rows.append((q["query"],) + ("",) * 11 + ("skipped: " + q["reason"][:60],))
+                rows.append((q["query"],) + ("",) * (len(TABLE_HEAD) - 2) + ("skipped: " + q["reason"][:60],))
                 continue
             mem = f"{q['strata_peak_mb'] if q['strata_peak_mb'] is not None else '?'}/" \
                   f"{q.get('pandas_peak_mb') if q.get('pandas_peak_mb') is not None else '?'}"
             rows.append((q["query"], _ms(q["strata_s"]), _pct(q["strata_spread_s"], q["strata_s"]),
                          _ms(q["hand_sql_s"]), _ms(q["floor_s"]), _ms(q["pandas_s"]), _x(q["hand_ratio"]),
-                         _x(q["floor_ratio"]), _x(q["pandas_ratio"]), _ms(q["limit20_s"]), str(q["rows"]), mem,
+                         _x(q["floor_ratio"]), _x(q["pandas_ratio"]), _ms(q["limit20_s"]),
+                         _ms(q["limit20_no_context_s"]), str(q["rows"]), mem,
                          q["status"] + (f" ({', '.join(q['differences'])})" if q.get("differences") else "")))
         widths = [max(len(r[i]) for r in rows) for i in range(len(TABLE_HEAD))]
         left = (0, len(TABLE_HEAD) - 1)
