@@ -191,3 +191,18 @@ def test_cli_import_info_export(tmp_path):
     assert (tmp_path / "back.conllu").read_bytes() == good.read_bytes()
     for cmd in ("init", "import", "info", "export", "query", "explain", "demo"):
         assert _cli(cmd, "--help", cwd=tmp_path).returncode == 0
+
+
+def test_text_comment_that_disagrees_with_the_tokens_is_reported(tmp_path):
+    """The primary text comes from the tokens and SpaceAfter; a differing '# text' is named by line."""
+    lines = _head(3)
+    i = next(k for k, l in enumerate(lines) if l.startswith("# text = ") and k > 20)
+    lines[i] = lines[i].rstrip("\n") + " (edited)\n"
+    path = tmp_path / "text.conllu"
+    _write(path, lines)
+    corpus = Corpus.create(tmp_path / "c")
+    report = corpus.import_files([path], progress=False)
+    assert len(report.warnings) == 1
+    assert f"text.conllu:{i + 1}:" in report.warnings[0]          # the line of the '# text' comment
+    assert "differs from its tokens" in report.warnings[0]
+    assert corpus.export("conllu") == "".join(lines)      # the comment itself is kept as written

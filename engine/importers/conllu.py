@@ -804,14 +804,18 @@ class ConlluImporter:
         con.register("sent_arrow", pa.table({k: S[k] for k in ("id", "doc", "start", "end", "tok_first", "tok_last",
                                                                 "word_first", "word_last", "s")}))
         table = con.sql(f"""
-            SELECT o.* EXCLUDE (s), o.id AS sent, a.* EXCLUDE (s, comments), coalesce(a.comments, '') AS comments
+            SELECT o.* EXCLUDE (s), o.id AS sent, a.* EXCLUDE (s, comments, text_line),
+                   coalesce(a.comments, '') AS comments, a.text_line
             FROM sent_arrow o LEFT JOIN (
                 SELECT s, last(value ORDER BY n) FILTER (WHERE key = 'sent_id') AS sent_id,
                        last(value ORDER BY n) FILTER (WHERE key = 'text') AS text,
+                       max(n) FILTER (WHERE key = 'text') AS text_line,
                        string_agg(line, chr(10) ORDER BY n) AS comments{attr_cols}
                 FROM com GROUP BY s) a USING (s)
             ORDER BY o.id""").to_arrow_table()
         con.unregister("sent_arrow")
+        text_lines = table.column("text_line").to_pylist()
+        table = table.drop_columns(["text_line"])
         self.report.add("sentences", self._stage(self.names["sentence"], table))
         # the "# text" comment must equal the rebuilt sentence
         texts = table.column("text").to_pylist()
@@ -823,7 +827,7 @@ class ConlluImporter:
             info = by_num[int(docs[k])]
             rebuilt = info.text[int(starts[k]) - info.base:int(ends[k]) - info.base]
             if rebuilt != t:
-                self.report.warnings.append(f"{self.path}:{int(S['line'][k])}: the '# text' of sentence "
+                self.report.warnings.append(f"{self.path}:{text_lines[k]}: the '# text' of sentence "
                                             f"{self.sent_ids.get(int(S['s'][k]))} differs from its tokens joined by "
                                             "SpaceAfter")
 
