@@ -11,12 +11,18 @@ Only missing values are filled (``coalesce``), so what a layer brought itself wi
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Callable
 
 import duckdb
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
 
+from engine.align import ranges
 from engine.align.sequence import GOOD
-from engine.store import Batch
+from engine.store import ROW_GROUP_SIZE, Batch
 
 #: Layer props marking a layer whose nodes are the bridge between text and time.
 TIME_WORDS = "time_words"
@@ -75,6 +81,96 @@ def _transfer_sql(nodes: str, source: str, lo: str, hi: str, a: str, b: str, eps
     FROM n LEFT JOIN cover USING (id) LEFT JOIN before USING (id) LEFT JOIN after USING (id)"""
 
 
+#: Per batch of node rows (columns as float64, NaN = NULL): {column: fill value, NaN = none}.
+ArrayFill = Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]
+
+
+@dataclass
+class Fill:
+    """One fill, as a DuckDB join (always) and as numpy range lookups (when the reference allows)."""
+    sql: str
+    cols: dict[str, str]
+    arrays: ArrayFill | None = None
+    needs: tuple[str, ...] = field(default=())
+
+    def __iter__(self):          # unpacks like the (sql, cols) pair it replaced
+        return iter((self.sql, self.cols))
+
+
+def rewrite(con: duckdb.DuckDBPyConnection, paths: list[Path], out: Path, stages: list[list[Fill]]) -> int:
+    """Write ``paths`` to ``out`` with each stage's columns filled by ``coalesce``, rows in order.
+
+    A later stage sees the columns an earlier one filled. Streams row groups through the
+    numpy fills when every fill has one (bounded memory, no join); otherwise one SQL
+    rewrite per stage, as before.
+    """
+    stages = [s for s in stages if s]
+    if all(f.arrays is not None for s in stages for f in s):
+        try:
+            rows = _rewrite_arrays(paths, out, stages)
+        except _Fallback:
+            out.unlink(missing_ok=True)
+            rows = None
+        if rows is not None:
+            return rows
+    rows = 0
+    current = paths
+    for k, stage in enumerate(stages):
+        target = out if k == len(stages) - 1 else out.with_name(out.stem + f"--stage{k}.parquet")
+        rows = _rewrite(con, current, target, [(f.sql, f.cols) for f in stage])
+        if current is not paths:
+            for p in current:
+                p.unlink()
+        current = [target]
+    return rows
+
+
+def _as_float(col: pa.ChunkedArray | pa.Array) -> np.ndarray:
+    if pa.types.is_null(col.type):
+        return np.full(len(col), np.nan)
+    return col.cast(pa.float64()).to_numpy(zero_copy_only=False)
+
+
+def _from_float(values: np.ndarray, typ: pa.DataType) -> pa.Array:
+    missing = np.isnan(values)
+    if pa.types.is_floating(typ):
+        return pa.array(values, mask=missing).cast(typ)
+    return pa.array(np.where(missing, 0, values).astype(np.int64), mask=missing).cast(typ)
+
+
+def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> int | None:
+    """The streaming rewrite; ``None`` when the parts' schemas do not unify (the SQL path decides)."""
+    try:
+        schema = pa.unify_schemas([pq.read_schema(p).remove_metadata() for p in paths])
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return None
+    rows = 0
+    with pq.ParquetWriter(out, schema, compression="zstd") as writer:
+        for path in paths:
+            for rb in pq.ParquetFile(path).iter_batches(batch_size=ROW_GROUP_SIZE):
+                table = pa.Table.from_batches([rb])
+                cols = {f.name: (table.column(f.name).cast(f.type) if f.name in table.column_names
+                                 else pa.nulls(table.num_rows, f.type)) for f in schema}
+                for stage in stages:
+                    numeric = {c: _as_float(cols[c]) for c in _NUMERIC if c in cols}
+                    updates: dict[str, pa.Array] = {}
+                    for fill in stage:
+                        for col, values in fill.arrays(numeric).items():
+                            if col not in cols:
+                                continue
+                            old = numeric[col]
+                            updates[col] = _from_float(np.where(np.isnan(old), values, old), schema.field(col).type)
+                    cols.update(updates)
+                writer.write_table(pa.table([cols[f.name] for f in schema], schema=schema),
+                                   row_group_size=ROW_GROUP_SIZE)
+                rows += table.num_rows
+    return rows
+
+
+#: The columns the numpy fills read.
+_NUMERIC = ("doc", "start", "end", "t_start", "t_end", "sent", "tok_first", "tok_last", "word_first", "word_last")
+
+
 def _rewrite(con: duckdb.DuckDBPyConnection, paths: list[Path], out: Path, fills: list[tuple[str, dict[str, str]]]
              ) -> int:
     """Write ``paths`` to ``out`` with columns replaced by ``coalesce(col, fill)``, rows in order.
@@ -105,31 +201,145 @@ def _type(con: duckdb.DuckDBPyConnection, col: str) -> str:
     return next(t for c, t, *_ in con.execute("DESCRIBE __n").fetchall() if c == col)
 
 
-def chars_from_times(words: list[Path]) -> tuple[str, dict[str, str]]:
+class _Fallback(Exception):
+    """A reference turned out unfit for range lookups mid-way: the SQL join decides."""
+
+
+_REFERENCES: dict[tuple, ranges.Reference | None] = {}
+
+
+def _reference(sql: str, paths: list[Path], lo: str, hi: str, values: tuple[str, ...], tie: str | None
+               ) -> ranges.Reference | None:
+    """Rows of ``sql`` (columns doc, lo, hi, values...) sorted for range lookups; ``None`` if unfit.
+
+    Remembered per set of files (path, size, modification time): several layers of one
+    import ask for the same reference.
+    """
+    key = (sql, lo, hi, values, tie, tuple((str(p), p.stat().st_size, p.stat().st_mtime_ns) for p in paths))
+    if key in _REFERENCES:
+        return _REFERENCES[key]
+    with duckdb.connect() as con:
+        cols = con.execute(sql).fetchnumpy()
+    arrays = {k: np.ma.filled(np.ma.asarray(v).astype(np.float64), np.nan) for k, v in cols.items()}
+    if np.isnan(arrays["lo"]).any() or np.isnan(arrays["hi"]).any():
+        ref = None                                   # a one-sided key: only the join knows what it matches
+    else:
+        ref = ranges.sorted_reference(arrays["doc"], arrays["lo"], arrays["hi"],
+                                      {v: arrays[v] for v in values}, tie)
+    if len(_REFERENCES) > 16:
+        _REFERENCES.clear()
+    _REFERENCES[key] = ref
+    return ref
+
+
+def _node_ranges(c: dict[str, np.ndarray], ref: ranges.Reference, lo: np.ndarray, hi: np.ndarray,
+                 doc: np.ndarray, within: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Reference index range per node, empty where the node has no span or the range is in another document."""
+    valid = ~np.isnan(lo) & ~np.isnan(hi)
+    lo, hi = np.where(valid, lo, 0), np.where(valid, hi, 0)
+    j, k = (ranges.within_range if within else ranges.overlap_range)(ref, lo, hi)
+    j, k = np.where(valid, j, 0), np.where(valid, k, 0)
+    ok = ranges.same_doc(ref, j, k, doc)
+    if ok is None:
+        raise _Fallback
+    return np.where(ok, j, 0), np.where(ok, k, 0)
+
+
+def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, eps: float) -> ArrayFill:
+    """:func:`_transfer_sql` as range lookups: cover, else the word before, else the word after."""
+    def fill(c: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        n = len(c["doc"])
+        out_a, out_b = np.full(n, np.nan), np.full(n, np.nan)
+        need = np.isnan(c[a]) & ~np.isnan(c[lo])
+        m = len(ref.lo)
+        if not need.any() or m == 0:
+            return {a: out_a, b: out_b}
+        doc, nlo, nhi0 = c["doc"][need], c[lo][need], c[hi][need]
+        nhi = np.where(nhi0 > nlo, nhi0, nlo + eps)
+        j, k = _node_ranges(c, ref, nlo, nhi, doc, within=False)
+        cover_a = ranges.range_reduce(ref.values["a"], j, k, np.fmin)
+        cover_b = ranges.range_reduce(ref.values["b"], j, k, np.fmax)
+        ib = np.searchsorted(ref.hi, nlo, side="right") - 1          # the last word ending at or before
+        ib_c = np.maximum(ib, 0)
+        before = ranges.pick(ref.values["b"], ib_c, (ib >= 0) & (ref.doc[ib_c] == doc))
+        ia = np.searchsorted(ref.lo, np.where(np.isnan(nhi0), np.inf, nhi0), side="left")   # the first starting at or after
+        ia_c = np.minimum(ia, m - 1)
+        after = ranges.pick(ref.values["a"], ia_c, (ia < m) & ~np.isnan(nhi0) & (ref.doc[ia_c] == doc))
+        new_a = np.where(np.isnan(cover_a), np.where(np.isnan(before), after, before), cover_a)
+        new_b = np.where(np.isnan(cover_b), np.where(np.isnan(before), after, before), cover_b)
+        out_a[need], out_b[need] = new_a, new_b
+        return {a: out_a, b: out_b}
+    return fill
+
+
+def _bridge_reference(words: list[Path], lo: str, hi: str, a: str, b: str) -> ranges.Reference | None:
+    sql = (f"SELECT doc, {lo} AS lo, {hi} AS hi, {a} AS a, {b} AS b FROM {_bridge(words)} "
+           f"WHERE {lo} IS NOT NULL OR {hi} IS NOT NULL")
+    return _reference(sql, words, "lo", "hi", ("a", "b"), None)
+
+
+def chars_from_times(words: list[Path]) -> Fill:
     """Fill for time-only nodes: the characters of the aligned words they fall in or between."""
-    return (_transfer_sql("__n", _bridge(words), "t_start", "t_end", "start", '"end"', "1e-9"),
-            {"start": "new_a", "end": "new_b"})
+    ref = _bridge_reference(words, "t_start", "t_end", "start", '"end"')
+    return Fill(_transfer_sql("__n", _bridge(words), "t_start", "t_end", "start", '"end"', "1e-9"),
+                {"start": "new_a", "end": "new_b"},
+                _rename(_transfer_arrays(ref, "t_start", "t_end", "a", "b", 1e-9), {"a": "start", "b": "end"},
+                        {"start": "a", "end": "b"}) if ref else None)
 
 
-def times_from_chars(words: list[Path]) -> tuple[str, dict[str, str]]:
+def times_from_chars(words: list[Path]) -> Fill:
     """Fill for text-only nodes: the time span of the aligned words they cover."""
-    return (_transfer_sql("__n", _bridge(words), "start", '"end"', "t_start", "t_end", "1"),
-            {"t_start": "new_a", "t_end": "new_b"})
+    ref = _bridge_reference(words, "start", '"end"', "t_start", "t_end")
+    return Fill(_transfer_sql("__n", _bridge(words), "start", '"end"', "t_start", "t_end", "1"),
+                {"t_start": "new_a", "t_end": "new_b"},
+                _rename(_transfer_arrays(ref, "start", "end", "a", "b", 1.0), {"a": "t_start", "b": "t_end"},
+                        {"t_start": "a", "t_end": "b"}) if ref else None)
 
 
-def structure_fills(batch: Batch) -> list[tuple[str, dict[str, str]]]:
+def _rename(fn: ArrayFill, out: dict[str, str], inp: dict[str, str]) -> ArrayFill:
+    """Run ``fn`` with node columns also visible under other names (``a``/``b``), results renamed back."""
+    def fill(c: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        res = fn({**c, **{alias: c[col] for col, alias in inp.items()}})
+        return {out[k]: v for k, v in res.items()}
+    return fill
+
+
+def _sentence_arrays(ref: ranges.Reference) -> ArrayFill:
+    def fill(c: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        j, k = _node_ranges(c, ref, c["start"], c["end"], c["doc"], within=True)
+        return {"sent": ranges.range_reduce(ref.values["id"], j, k, np.fmin)}
+    return fill
+
+
+def _token_arrays(ref: ranges.Reference, first: str, last: str) -> ArrayFill:
+    def fill(c: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        j, k = _node_ranges(c, ref, c["start"], c["end"], c["doc"], within=False)
+        return {first: ranges.range_reduce(ref.values["ord"], j, k, np.fmin),
+                last: ranges.range_reduce(ref.values["ord"], j, k, np.fmax)}
+    return fill
+
+
+def structure_fills(batch: Batch) -> list[Fill]:
     """Fills for ``sent``, ``tok_first/last`` and ``word_first/last`` from the reference layers."""
     fills = []
     sent = batch.store.part_paths(SENTENCE_LAYER)
     if sent:
-        fills.append((f"""SELECT __n.id, min(s.id) AS v FROM __n JOIN {parquet(sent)} s ON s.doc = __n.doc
-                          AND s.start <= __n.start AND __n."end" <= s."end" GROUP BY __n.id""", {"sent": "v"}))
+        ref = _reference(f'SELECT doc, start AS lo, "end" AS hi, id FROM {parquet(sent)} '
+                         'WHERE start IS NOT NULL AND "end" IS NOT NULL AND id IS NOT NULL', sent, "lo", "hi",
+                         ("id",), "id")
+        fills.append(Fill(f"""SELECT __n.id, min(s.id) AS v FROM __n JOIN {parquet(sent)} s ON s.doc = __n.doc
+                          AND s.start <= __n.start AND __n."end" <= s."end" GROUP BY __n.id""", {"sent": "v"},
+                          _sentence_arrays(ref) if ref else None))
     for layer, first, last in ((TOKEN_LAYER, "tok_first", "tok_last"), (WORD_LAYER, "word_first", "word_last")):
         paths = batch.store.part_paths(layer)
         if paths:
-            fills.append((f"""SELECT __n.id, min(t.ord) AS a, max(t.ord) AS b FROM __n JOIN {parquet(paths)} t
+            ref = _reference(f'SELECT doc, start AS lo, "end" AS hi, ord FROM {parquet(paths)} '
+                             'WHERE start IS NOT NULL AND "end" IS NOT NULL AND ord IS NOT NULL', paths, "lo", "hi",
+                             ("ord",), "ord")
+            fills.append(Fill(f"""SELECT __n.id, min(t.ord) AS a, max(t.ord) AS b FROM __n JOIN {parquet(paths)} t
                               ON t.doc = __n.doc AND t.start < __n."end" AND t."end" > __n.start
-                              GROUP BY __n.id""", {first: "a", last: "b"}))
+                              GROUP BY __n.id""", {first: "a", last: "b"},
+                              _token_arrays(ref, first, last) if ref else None))
     return fills
 
 
@@ -143,19 +353,18 @@ def finalise_new_layer(batch: Batch, layer: str, *, time_axis: bool) -> None:
     if not paths:
         return
     words = [p for p in time_word_paths(batch) if p not in paths]
-    with duckdb.connect() as con:
-        if time_axis and words:
-            out = batch.stage / f"{layer}--chars.parquet"
-            rows = _rewrite(con, paths, out, [chars_from_times(words)])
-            batch.replace_staged(layer, out, rows)
-            paths = batch.staged_paths(layer)
-        fills = structure_fills(batch)
-        if not time_axis and words:
-            fills.append(times_from_chars(words))
-        if fills:
-            out = batch.stage / f"{layer}--final.parquet"
-            rows = _rewrite(con, paths, out, fills)
-            batch.replace_staged(layer, out, rows)
+    stages: list[list[Fill]] = []
+    if time_axis and words:
+        stages.append([chars_from_times(words)])
+    fills = structure_fills(batch)
+    if not time_axis and words:
+        fills.append(times_from_chars(words))
+    stages.append(fills)
+    if any(stages):
+        out = batch.stage / f"{layer}--final.parquet"
+        with duckdb.connect() as con:
+            rows = rewrite(con, paths, out, stages)
+        batch.replace_staged(layer, out, rows)
     if not time_axis and words:
         kind, props = batch._layer_props[layer]
         props["time"] = True
@@ -184,7 +393,7 @@ def times_onto_stored_layers(batch: Batch, docs: set[int], skip: set[str]) -> li
             if not todo:
                 continue
             out = batch.stage / f"replace-{name}.parquet"
-            _rewrite(con, paths, out, [times_from_chars(words)])
+            rewrite(con, paths, out, [[times_from_chars(words)]])
             batch.declare_layer(name, info.kind, {"time": True})
             batch.replace_layer(name, out)
             done.append(name)
