@@ -23,7 +23,7 @@ def _segmentation(rng: np.random.Generator, docs: int, bounds: list | None = Non
     rows = {"doc": [], "start": [], "end": [], "ord": [], "t_start": [], "t_end": []}
     pos, t, o = 0, 0.0, 0
     for d in range(docs):
-        base = pos
+        base, t = pos, 0.0          # every recording starts at 0 s
         for _ in range(int(rng.integers(0, 12))):
             pos += int(rng.integers(0, 3))
             width = int(rng.integers(1, 5))

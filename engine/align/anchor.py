@@ -237,7 +237,7 @@ def _node_ranges(c: dict[str, np.ndarray], ref: ranges.Reference, lo: np.ndarray
     """Reference index range per node, empty where the node has no span or the range is in another document."""
     valid = ~np.isnan(lo) & ~np.isnan(hi)
     lo, hi = np.where(valid, lo, 0), np.where(valid, hi, 0)
-    j, k = (ranges.within_range if within else ranges.overlap_range)(ref, lo, hi)
+    j, k = (ranges.within_range if within else ranges.overlap_range)(ref, doc, lo, hi)
     j, k = np.where(valid, j, 0), np.where(valid, k, 0)
     ok = ranges.same_doc(ref, j, k, doc)
     if ok is None:
@@ -259,12 +259,10 @@ def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, ep
         j, k = _node_ranges(c, ref, nlo, nhi, doc, within=False)
         cover_a = ranges.range_reduce(ref.values["a"], j, k, np.fmin)
         cover_b = ranges.range_reduce(ref.values["b"], j, k, np.fmax)
-        ib = np.searchsorted(ref.hi, nlo, side="right") - 1          # the last word ending at or before
-        ib_c = np.maximum(ib, 0)
-        before = ranges.pick(ref.values["b"], ib_c, (ib >= 0) & (ref.doc[ib_c] == doc))
-        ia = np.searchsorted(ref.lo, np.where(np.isnan(nhi0), np.inf, nhi0), side="left")   # the first starting at or after
-        ia_c = np.minimum(ia, m - 1)
-        after = ranges.pick(ref.values["a"], ia_c, (ia < m) & ~np.isnan(nhi0) & (ref.doc[ia_c] == doc))
+        ib = ranges.last_ending_by(ref, doc, nlo)
+        before = ranges.pick(ref.values["b"], np.maximum(ib, 0), ib >= 0)
+        ia = ranges.first_starting_from(ref, doc, nhi0)
+        after = ranges.pick(ref.values["a"], np.maximum(ia, 0), ia >= 0)
         new_a = np.where(np.isnan(cover_a), np.where(np.isnan(before), after, before), cover_a)
         new_b = np.where(np.isnan(cover_b), np.where(np.isnan(before), after, before), cover_b)
         out_a[need], out_b[need] = new_a, new_b

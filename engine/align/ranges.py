@@ -1,8 +1,11 @@
 """Range lookups on sorted anchors in numpy: the fills of :mod:`engine.align.anchor` without a join.
 
-A reference layer (sentences, tokens, aligned time words) whose rows, sorted by start,
-also have non-decreasing ends, answers "which rows overlap [lo, hi)" as one contiguous
-index range found by two binary searches per node. That turns the range joins of the
+A reference layer (sentences, tokens, aligned time words) whose rows, sorted by start
+within each document, also have non-decreasing ends, answers "which rows overlap
+[lo, hi)" as one contiguous index range found by two binary searches per node. Times
+start at 0 in every document, so the searches run on exact integer keys
+``(doc, rank of the value among the reference's values)``, never on times shifted by
+a document offset (that would lose the sub-nanosecond tolerance). That turns the range joins of the
 SQL fills (quadratic within a document) into O((n + m) log m) arrays. A reference that
 is not monotone (two word layers mixed, overlapping speakers) returns ``None`` from
 :func:`sorted_reference`, and the caller keeps the SQL join.
@@ -16,36 +19,71 @@ import numpy as np
 
 @dataclass
 class Reference:
-    """Rows of a reference layer sorted by ``(lo, hi)``; ``lo`` and ``hi`` both non-decreasing."""
+    """Rows of a reference layer sorted by ``(doc, lo, hi)``, ``lo`` and ``hi`` non-decreasing per doc.
+
+    ``lo``/``hi`` are integer keys (see :meth:`key`); ``values`` are float64, NaN where NULL.
+    """
     doc: np.ndarray
     lo: np.ndarray
     hi: np.ndarray
-    values: dict[str, np.ndarray]     # float64, NaN where NULL
+    values: dict[str, np.ndarray]
+    points: np.ndarray                # sorted distinct values of lo and hi
+
+    def key(self, doc: np.ndarray, x: np.ndarray) -> np.ndarray:
+        """Order-preserving integer key of ``(doc, x)``: a value equal to a reference value gets its
+        even rank, one between two gets the odd number between them."""
+        i = np.searchsorted(self.points, x, side="left")
+        equal = np.zeros(len(x), dtype=bool)
+        inside = i < len(self.points)
+        equal[inside] = self.points[i[inside]] == x[inside]
+        rank = np.where(equal, 2 * i, 2 * i - 1) + 1
+        return doc.astype(np.int64) * (2 * len(self.points) + 2) + rank
 
 
 def sorted_reference(doc: np.ndarray, lo: np.ndarray, hi: np.ndarray, values: dict[str, np.ndarray],
                      tie: str | None = None) -> Reference | None:
-    """Sort by ``(lo, hi[, tie])``; ``None`` when the ends are then not non-decreasing."""
-    keys = (values[tie], hi, lo) if tie else (hi, lo)
+    """Sort by ``(doc, lo, hi[, tie])``; ``None`` when the ends are then not non-decreasing per doc."""
+    keys = (values[tie], hi, lo, doc) if tie else (hi, lo, doc)
     order = np.lexsort(keys)
-    hi_s = hi[order]
-    if hi_s.size > 1 and (np.diff(hi_s) < 0).any():
+    points = np.unique(np.concatenate([lo, hi]))
+    ref = Reference(doc[order], lo[order], hi[order], {k: v[order] for k, v in values.items()}, points)
+    ref.lo, ref.hi = ref.key(ref.doc, ref.lo), ref.key(ref.doc, ref.hi)
+    if ref.hi.size > 1 and (np.diff(ref.hi) < 0).any():
         return None
-    return Reference(doc[order], lo[order], hi_s, {k: v[order] for k, v in values.items()})
+    return ref
 
 
-def overlap_range(ref: Reference, lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``[j, k)``: the reference rows with ``ref.lo < hi`` and ``ref.hi > lo`` (empty when j >= k)."""
-    k = np.searchsorted(ref.lo, hi, side="left")
-    j = np.searchsorted(ref.hi, lo, side="right")
+def overlap_range(ref: Reference, doc: np.ndarray, lo: np.ndarray, hi: np.ndarray
+                  ) -> tuple[np.ndarray, np.ndarray]:
+    """``[j, k)``: the reference rows of ``doc`` with ``ref.lo < hi`` and ``ref.hi > lo`` (empty when j >= k)."""
+    k = np.searchsorted(ref.lo, ref.key(doc, hi), side="left")
+    j = np.searchsorted(ref.hi, ref.key(doc, lo), side="right")
     return j, k
 
 
-def within_range(ref: Reference, lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``[j, k)``: the reference rows with ``ref.lo <= lo`` and ``hi <= ref.hi`` (containing the node)."""
-    k = np.searchsorted(ref.lo, lo, side="right")
-    j = np.searchsorted(ref.hi, hi, side="left")
+def within_range(ref: Reference, doc: np.ndarray, lo: np.ndarray, hi: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """``[j, k)``: the reference rows of ``doc`` with ``ref.lo <= lo`` and ``hi <= ref.hi`` (containing the node)."""
+    k = np.searchsorted(ref.lo, ref.key(doc, lo), side="right")
+    j = np.searchsorted(ref.hi, ref.key(doc, hi), side="left")
     return j, k
+
+
+def last_ending_by(ref: Reference, doc: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Index of the last reference row of ``doc`` with ``hi <= x``; -1 if none."""
+    i = np.searchsorted(ref.hi, ref.key(doc, x), side="right") - 1
+    ok = (i >= 0) & (ref.doc[np.maximum(i, 0)] == doc) if len(ref.hi) else np.zeros(len(x), dtype=bool)
+    return np.where(ok, i, -1)
+
+
+def first_starting_from(ref: Reference, doc: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Index of the first reference row of ``doc`` with ``lo >= x``; -1 if none (or ``x`` is NaN)."""
+    m = len(ref.lo)
+    i = np.searchsorted(ref.lo, ref.key(doc, x), side="left")
+    ok = (i < m) & ~np.isnan(x)
+    if m:
+        ok &= ref.doc[np.minimum(i, m - 1)] == doc
+    return np.where(ok, i, -1)
 
 
 def same_doc(ref: Reference, j: np.ndarray, k: np.ndarray, doc: np.ndarray) -> np.ndarray | None:
