@@ -67,18 +67,44 @@ def normalise_form(form: str) -> str:
     return "".join(_char(c) for c in form)
 
 
+def _text_char(c: str) -> str:
+    """Normal form of one character of a text (ASCII without the Unicode machinery)."""
+    if c.isascii():
+        return "" if c.isspace() else ("'" if c == "`" else c.lower())
+    return _char(c)
+
+
+#: ASCII: the normal form of every character and its length (0 for whitespace).
+_ASCII_TABLE = {i: _text_char(chr(i)) for i in range(128)}
+_ASCII_LEN = np.array([len(_ASCII_TABLE[i]) for i in range(128)], dtype=np.int64)
+#: Texts shorter than this find their distinct characters by sorting, longer ones by counting.
+_SORT_BELOW = 1 << 14
+
+
 def normalise_text(text: str) -> tuple[str, np.ndarray]:
-    """Normal form of a text and, per normal character, the index of the original character."""
-    parts: list[str] = []
-    origin: list[int] = []
-    for i, c in enumerate(text):
-        if c.isascii():
-            if c.isspace():
-                continue
-            n = c.lower() if c != "`" else "'"
+    """Normal form of a text and, per normal character, the index of the original character.
+
+    One ``str.translate`` over the text with a table of the characters it has, and the
+    offsets from the normal-form length of each character (0 for whitespace, 2 for
+    ``\u00df`` -> ``ss``, ...), so no Python loop runs per character.
+    """
+    if text.isascii():
+        lens = _ASCII_LEN[np.frombuffer(text.encode("ascii"), dtype=np.uint8)]
+        norm = text.translate(_ASCII_TABLE)
+    else:
+        codes = np.frombuffer(text.encode("utf-32-le"), dtype=np.uint32)
+        if len(codes) < _SORT_BELOW:
+            present, inverse = np.unique(codes, return_inverse=True)
+        else:                                   # counting beats sorting on long texts
+            present, inverse = np.flatnonzero(np.bincount(codes)), None
+        table = {c: _text_char(chr(c)) for c in present.tolist()}
+        norm = text.translate(table)
+        per_code = np.fromiter((len(v) for v in table.values()), dtype=np.int64, count=len(table))
+        if inverse is None:
+            lookup = np.zeros(int(present[-1]) + 1, dtype=np.int64)
+            lookup[present] = per_code
+            lens = lookup[codes]
         else:
-            n = _char(c)
-        if n:
-            parts.append(n)
-            origin.extend([i] * len(n))
-    return "".join(parts), np.asarray(origin, dtype=np.int64)
+            lens = per_code[inverse]
+    origin = np.repeat(np.arange(len(text), dtype=np.int64), lens)
+    return norm, origin
