@@ -20,6 +20,8 @@ TEXT_RELATIONS = {"inside", "contains", "overlaps", "same span as", "precedes", 
                   "directly precedes", "directly follows"}
 TREE_RELATIONS = {"child of", "parent of", "under", "above", "sibling of"}
 DEPENDENCY_RELATIONS = {"depends on", "governs"}
+# Tree relations that, with `via EDGESET`, walk the edge set's graph any number of steps instead.
+WALK_RELATIONS = {"under", "above"}
 COREF_RELATIONS = {"same entity as", "antecedent of", "previous mention of"}
 # Allen (1983): the thirteen interval relations.
 TIME_RELATIONS = {"before", "after", "meets", "met by", "overlaps", "overlapped by", "starts",
@@ -283,8 +285,12 @@ class _Checker:
             self.fail("`at depth` goes with `under` and `above`", rel.pos)
         if rel.depth is not None and not (1 <= rel.depth[0] <= rel.depth[1]):
             self.fail("depth range must be 1..n with the smaller number first", rel.pos)
-        if (rel.label is not None or rel.via is not None) and name not in DEPENDENCY_RELATIONS:
-            self.fail("`as` and `via` go with `depends on` and `governs`", rel.pos)
+        walk = name in WALK_RELATIONS and rel.via is not None
+        if rel.via is not None and name not in DEPENDENCY_RELATIONS | WALK_RELATIONS:
+            self.fail("`via` goes with `depends on`, `governs`, `under` and `above`", rel.pos)
+        if rel.label is not None and not (name in DEPENDENCY_RELATIONS or walk):
+            hint = f"name the edge set the walk follows: `a {name} b via dep as ...`" if name in WALK_RELATIONS else None
+            self.fail("`as` goes with `depends on`, `governs`, and `under`/`above` with `via`", rel.pos, hint)
         if rel.within is not None and not (is_time or name in ("precedes", "follows", "directly precedes",
                                                                   "directly follows")):
             self.fail(f"`within` does not apply to `{name}`", rel.within.pos,
@@ -303,6 +309,8 @@ class _Checker:
             for info in (la, lb):
                 if not info.time:
                     self.fail(f"`{name}` compares time spans, but layer {info.name!r} has no time stamps", rel.pos)
+        elif walk:
+            via = self.edge_set(rel, la, lb)
         elif name in TREE_RELATIONS:
             if not (la.tree and lb.tree):
                 bad = la if not la.tree else lb
