@@ -407,3 +407,38 @@ def check_condition(c, cond):
     hits = run_query(c.con, c.catalog, f"find a = chunk({text})", context=0).to_arrow()
     want = {n["id"] for n in c.nodes["chunk"] if test(n) is True}
     assert set(hits.column("a.id").to_pylist()) == want, text
+
+
+def reachable_steps(edges: set[tuple[int, int]], start: int) -> dict[int, int]:
+    """Breadth-first: every node reachable from ``start`` along src -> dst, with its fewest edges."""
+    steps, frontier, k = {}, [start], 0
+    while frontier:
+        k += 1
+        nxt = []
+        for n in frontier:
+            for s, d in edges:
+                if s == n and d not in steps:
+                    steps[d] = k
+                    nxt.append(d)
+        frontier = nxt
+    return steps
+
+
+@SETTINGS
+@given(corpora(), st.sampled_from(["under", "above"]), st.sampled_from([None, "nsubj"]),
+       st.one_of(st.none(), st.tuples(st.integers(1, 3), st.integers(0, 2))))
+def test_walks_via_an_edge_set(c, rel, label, depth):
+    """Random dep edges have cycles and repeats: the walk must end and never pair a node with itself."""
+    mod = f' as "{label}"' if label else ""
+    if depth is not None:
+        mod += f" at depth {depth[0]}..{depth[0] + depth[1]}"
+    edges = {(e["src"], e["dst"]) for e in c.edges if label is None or e["label"] == label}
+
+    def test(a, b):
+        low, high = (a, b) if rel == "under" else (b, a)
+        k = reachable_steps(edges, low["id"]).get(high["id"])
+        if k is None or low["id"] == high["id"]:
+            return False
+        return depth is None or depth[0] <= k <= depth[0] + depth[1]
+    got = pairs(c, f"find a = word, b = word where a {rel} b via dep{mod}")
+    assert got == expected(c, "word", "word", test)
