@@ -16,6 +16,16 @@ def doc_has_rows(store: Store, layer: str, doc: int) -> bool:
                            [[str(p) for p in paths], doc]).fetchone()[0] > 0
 
 
+def docs_with_rows(store: Store, layer: str) -> set[int]:
+    """The documents ``layer`` has nodes of already: one scan of the layer, not one per document."""
+    paths = store.part_paths(layer)
+    if not paths:
+        return set()
+    with duckdb.connect() as con:
+        return {d for (d,) in con.execute("SELECT DISTINCT doc FROM read_parquet(?, union_by_name = true)",
+                                          [[str(p) for p in paths]]).fetchall()}
+
+
 def next_ord(store: Store, layer: str) -> int:
     """The next free corpus-wide ordinal of a layer (0 for a new one)."""
     paths = store.part_paths(layer)

@@ -1,9 +1,22 @@
-"""Reading the header-row tables of the tiers and span formats (TSV, or CSV by ending)."""
+"""Reading the header-row tables of the tiers and span formats (TSV, or CSV by ending).
+
+Two readers agree on every file: :func:`read_columns` splits the whole table with
+pyarrow's CSV reader (no Python object per row), and :func:`read_table` reads row by
+row with :mod:`csv`. The fast one hands over to the row reader whenever the file is
+one it does not read the same way (quotes, a lone carriage return) or pyarrow
+refuses it, so a bad row is always reported by the row reader with its file:line.
+"""
 from __future__ import annotations
 
 import csv
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pacsv
 
 from engine.errors import StrataError
 from engine.importers.base import read_lines
@@ -17,17 +30,14 @@ def delimiter_for(path: Path) -> str:
     return "," if path.name.lower().endswith(".csv") else "\t"
 
 
-def read_table(path: Path, required: list[str], allowed_reserved: set[str]
-               ) -> tuple[list[str], Iterator[tuple[int, dict[str, str]]]]:
-    """Header and ``(line, row)`` pairs; a missing or reserved column is a StrataError at line 1."""
-    lines = read_lines(path)
-    numbered = ((n, t) for n, t in lines if t.strip())
+def _header(path: Path, required: list[str], allowed_reserved: set[str],
+            numbered: Iterator[tuple[int, str]]) -> tuple[list[str], int]:
+    """The checked header row and its line number (the first line that is not blank)."""
     first = next(numbered, None)
     if first is None:
         raise StrataError("the file is empty: expected a header row with " + ", ".join(required), file=str(path),
                           line=1)
-    delim = delimiter_for(path)
-    header = [h.strip() for h in next(csv.reader([first[1]], delimiter=delim))]
+    header = [h.strip() for h in next(csv.reader([first[1]], delimiter=delimiter_for(path)))]
     missing = [c for c in required if c not in header]
     if missing:
         raise StrataError(f"the header lacks the column(s) {', '.join(missing)} "
@@ -40,6 +50,15 @@ def read_table(path: Path, required: list[str], allowed_reserved: set[str]
     if bad:
         raise StrataError(f"column(s) {', '.join(bad)} are names the store uses itself; rename them",
                           file=str(path), line=first[0])
+    return header, first[0]
+
+
+def read_table(path: Path, required: list[str], allowed_reserved: set[str]
+               ) -> tuple[list[str], Iterator[tuple[int, dict[str, str]]]]:
+    """Header and ``(line, row)`` pairs; a missing or reserved column is a StrataError at line 1."""
+    numbered = ((n, t) for n, t in read_lines(path) if t.strip())
+    header, _ = _header(path, required, allowed_reserved, numbered)
+    delim = delimiter_for(path)
 
     def rows() -> Iterator[tuple[int, dict[str, str]]]:
         for number, text in numbered:
@@ -51,6 +70,90 @@ def read_table(path: Path, required: list[str], allowed_reserved: set[str]
     return header, rows()
 
 
+@dataclass
+class Columns:
+    """A whole table: one Arrow string column per header name, and each row's line number."""
+    header: list[str]
+    table: pa.Table
+    lines: np.ndarray
+
+    @property
+    def num_rows(self) -> int:
+        return self.table.num_rows
+
+
+def read_columns(path: Path, required: list[str], allowed_reserved: set[str]) -> Columns:
+    """The table column-wise; any row the fast reader cannot vouch for goes through :func:`read_table`."""
+    numbered = ((n, t) for n, t in read_lines(path) if t.strip())
+    header, header_line = _header(path, required, allowed_reserved, numbered)
+    numbered.close()
+    fast = _read_fast(path, header, header_line)
+    if fast is not None:
+        return fast
+    return _read_rows(path, required, allowed_reserved)
+
+
+def _read_rows(path: Path, required: list[str], allowed_reserved: set[str]) -> Columns:
+    header, rows = read_table(path, required, allowed_reserved)
+    lines: list[int] = []
+    values: dict[str, list[str]] = {h: [] for h in header}
+    for line, r in rows:
+        lines.append(line)
+        for h in header:
+            values[h].append(r[h])
+    table = pa.table({h: pa.array(v, pa.string()) for h, v in values.items()})
+    return Columns(header, table, np.asarray(lines, dtype=np.int64))
+
+
+def _read_fast(path: Path, header: list[str], header_line: int) -> Columns | None:
+    """pyarrow's CSV reader over the rows after the header; None where it might read them otherwise."""
+    try:
+        data = path.read_bytes()
+    except OSError:
+        return None
+    # the row reader ends lines at "\n" only and interprets quotes: leave those files to it
+    if b'"' in data or data.count(b"\r") != data.count(b"\r\n"):
+        return None
+    buf = np.frombuffer(data, dtype=np.uint8)
+    ends = np.flatnonzero(buf == 10)
+    if len(data) and data[-1:] != b"\n":
+        ends = np.append(ends, len(data))
+    starts = np.concatenate([[0], ends[:-1] + 1]) if len(ends) else np.zeros(0, dtype=np.int64)
+    length = ends - starts
+    crlf = length > 0
+    crlf[crlf] = buf[ends[crlf] - 1] == 13
+    length = length - crlf
+    if header_line > len(ends):
+        return None
+    body = data[int(ends[header_line - 1]) + 1:]
+    line_no = np.flatnonzero(length[header_line:] > 0) + header_line + 1
+    names = [f"c{i}" for i in range(len(header))]
+    if not line_no.size:
+        return Columns(header, pa.table({h: pa.array([], pa.string()) for h in header}), line_no.astype(np.int64))
+    try:
+        table = pacsv.read_csv(
+            pa.py_buffer(body),
+            read_options=pacsv.ReadOptions(column_names=names, use_threads=True),
+            parse_options=pacsv.ParseOptions(delimiter=delimiter_for(path), quote_char=False,
+                                             newlines_in_values=False, ignore_empty_lines=True),
+            convert_options=pacsv.ConvertOptions(column_types={n: pa.string() for n in names},
+                                                 strings_can_be_null=False))
+    except (pa.ArrowInvalid, pa.ArrowException):
+        return None
+    if table.num_rows != line_no.size:
+        return None
+    table = table.rename_columns(header).combine_chunks()
+    if delimiter_for(path) == "\t":
+        # a line of tabs and spaces is a row to pyarrow but blank to the row reader
+        blank = None
+        for col in table.columns:
+            empty = pc.equal(pc.utf8_trim_whitespace(col), "")
+            blank = empty if blank is None else pc.and_(blank, empty)
+        if pc.any(blank).as_py():
+            return None
+    return Columns(header, table, line_no.astype(np.int64))
+
+
 def parse_time(value: str, unit: str, path: Path, line: int, column: str) -> float:
     """Seconds from a table cell in ``unit`` (s or ms)."""
     try:
@@ -60,6 +163,17 @@ def parse_time(value: str, unit: str, path: Path, line: int, column: str) -> flo
     if t != t or t in (float("inf"), float("-inf")) or t < 0:
         raise StrataError(f"{column} {value!r} is not a time (a number of {unit} from 0)", file=str(path),
                           line=line)
+    return t / 1000.0 if unit == "ms" else t
+
+
+def times_fast(values: pa.ChunkedArray | pa.Array, unit: str) -> np.ndarray | None:
+    """Seconds from a whole column, or None when a cell is not a time :func:`parse_time` would accept."""
+    try:
+        t = pc.cast(values, pa.float64()).to_numpy()
+    except (pa.ArrowInvalid, pa.ArrowException):
+        return None
+    if not np.all(np.isfinite(t) & (t >= 0)):
+        return None
     return t / 1000.0 if unit == "ms" else t
 
 

@@ -7,25 +7,32 @@ tier is aligned by characters to the document's primary text (:mod:`engine.align
 and becomes the bridge between text and time; the other tiers (phones, pauses,
 events) take their characters from the words they fall in or between, and the text
 layers already stored take their time spans from the words they cover.
+
+Rows are read and checked column-wise (pyarrow, numpy); only when a check fails are
+the rows concerned gone through one by one, so the message is the row reader's,
+with the first bad row's file:line.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pyarrow as pa
+import pyarrow.compute as pc
 
 from engine.align.anchor import TIME_WORDS, finalise_new_layer, times_onto_stored_layers
 from engine.align.report import check_alignment
 from engine.align.sequence import align_forms
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
-from engine.importers.stored import doc_has_rows, next_ord
-from engine.importers.tabular import parse_time, read_table, time_unit
+from engine.importers.stored import docs_with_rows, next_ord
+from engine.importers.tabular import Columns, parse_time, read_columns, read_table, times_fast, time_unit
 from engine.store import Batch, DocInfo
 
 FORMAT = "tiers"
 REQUIRED = ["doc", "tier", "start", "end", "label"]
+ALLOWED_RESERVED = {"start", "end", "doc"}
 #: Tiers holding the words a forced aligner wrote: aligned to the text.
 WORD_TIERS = ("words",)
 #: Tolerance for comparing times read from decimal text (well below a millisecond).
@@ -33,118 +40,191 @@ EPS = 1e-9
 
 
 @dataclass
-class _Row:
-    line: int
-    start: float
-    end: float
-    label: str
-    attrs: dict[str, str]
+class _Rows:
+    """All rows of all files of one import, column-wise, in file order."""
+    paths: list[Path]
+    file: np.ndarray        # index into paths
+    line: np.ndarray
+    doc: pa.Array           # names, stripped
+    tier: pa.Array
+    start: np.ndarray       # seconds
+    end: np.ndarray
+    label: pa.Array
+    attrs: dict[str, pa.Array]   # "" read as null
+
+    def place(self, i: int) -> dict:
+        return {"file": str(self.paths[self.file[i]]), "line": int(self.line[i])}
 
 
-@dataclass
-class _Tier:
-    rows: list[_Row] = field(default_factory=list)
-
-
-def _read(path: Path, unit: str, docs: dict[str, dict[str, _Tier]], first_line: dict[str, int]) -> list[str]:
-    header, rows = read_table(path, REQUIRED, allowed_reserved={"start", "end", "doc"})
-    attr_cols = [h for h in header if h not in REQUIRED]
+def _check_rows_one_by_one(path: Path, unit: str) -> None:
+    """The row reader's checks in file order: raises at the first bad row."""
+    _, rows = read_table(path, REQUIRED, allowed_reserved=ALLOWED_RESERVED)
     for line, r in rows:
         start = parse_time(r["start"], unit, path, line, "start")
         end = parse_time(r["end"], unit, path, line, "end")
         if end < start:
             raise StrataError(f"end {r['end']} is before start {r['start']}", file=str(path), line=line)
-        doc, tier = r["doc"].strip(), r["tier"].strip()
-        if not doc or not tier:
+        if not r["doc"].strip() or not r["tier"].strip():
             raise StrataError("doc and tier must not be empty", file=str(path), line=line)
-        first_line.setdefault(doc, line)
-        attrs = {c: (r[c] if r[c] != "" else None) for c in attr_cols}
-        docs.setdefault(doc, {}).setdefault(tier, _Tier()).rows.append(_Row(line, start, end, r["label"], attrs))
-    return attr_cols
 
 
-def _check_overlaps(path: Path, doc: str, tier: str, t: _Tier) -> None:
-    """Rows of one tier (per speaker) must not overlap: a tier is a segmentation of the time line."""
-    by_speaker: dict[str | None, list[_Row]] = {}
-    for r in t.rows:
-        by_speaker.setdefault(r.attrs.get("speaker"), []).append(r)
-    for rows in by_speaker.values():
-        rows.sort(key=lambda r: (r.start, r.end))
-        for a, b in zip(rows, rows[1:]):
-            if b.start < a.end - EPS:
-                raise StrataError(f"{tier!r} rows overlap in document {doc!r}: {b.start:g}-{b.end:g} s starts "
-                                  f"before {a.start:g}-{a.end:g} s (line {a.line}) ends; a tier may not overlap "
-                                  "itself", file=str(path), line=b.line)
-    t.rows.sort(key=lambda r: (r.start, r.end, r.line))
+def _times(cols: Columns, path: Path, unit: str) -> tuple[np.ndarray, np.ndarray, pa.Array, pa.Array]:
+    """Start, end, doc and tier of every row, checked; a failure is reported by the row reader."""
+    start = times_fast(cols.table.column("start"), unit)
+    end = times_fast(cols.table.column("end"), unit)
+    doc = pc.utf8_trim_whitespace(cols.table.column("doc").combine_chunks())
+    tier = pc.utf8_trim_whitespace(cols.table.column("tier").combine_chunks())
+    ok = start is not None and end is not None
+    if ok:
+        empty = pc.or_(pc.equal(doc, ""), pc.equal(tier, ""))
+        ok = not np.any(end < start) and not pc.any(empty).as_py()
+    if ok:
+        return start, end, doc, tier
+    _check_rows_one_by_one(path, unit)
+    # the row reader accepts what the column reader refused (e.g. spaces around a number)
+    lines = cols.lines
+    start = np.array([parse_time(v, unit, path, int(n), "start")
+                      for v, n in zip(cols.table.column("start").to_pylist(), lines)], dtype=np.float64)
+    end = np.array([parse_time(v, unit, path, int(n), "end")
+                    for v, n in zip(cols.table.column("end").to_pylist(), lines)], dtype=np.float64)
+    return start, end, doc, tier
 
 
-def _known_durations(batch: Batch) -> dict[int, float]:
-    """Recording lengths known from earlier imports, read once (a catalog query per document costs ~30 ms)."""
-    return dict(batch.store._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL"))
+def _read(paths: list[Path], unit: str) -> _Rows:
+    files, lines, docs, tiers, starts, ends, labels = [], [], [], [], [], [], []
+    attr_parts: list[dict[str, pa.Array]] = []
+    attr_cols: list[str] = []
+    for i, path in enumerate(paths):
+        cols = read_columns(path, REQUIRED, ALLOWED_RESERVED)
+        start, end, doc, tier = _times(cols, path, unit)
+        files.append(np.full(cols.num_rows, i, dtype=np.int32))
+        lines.append(cols.lines)
+        docs.append(doc)
+        tiers.append(tier)
+        starts.append(start)
+        ends.append(end)
+        labels.append(cols.table.column("label").combine_chunks())
+        part = {}
+        for c in cols.header:
+            if c not in REQUIRED:
+                col = cols.table.column(c).combine_chunks()
+                part[c] = pc.if_else(pc.equal(col, ""), pa.scalar(None, pa.string()), col)
+                if c not in attr_cols:
+                    attr_cols.append(c)
+        attr_parts.append(part)
+    n_of = [len(x) for x in lines]
+    attrs = {c: pa.concat_arrays([p.get(c, pa.nulls(n, pa.string())) for p, n in zip(attr_parts, n_of)])
+             for c in attr_cols}
+    return _Rows(paths, np.concatenate(files), np.concatenate(lines), pa.concat_arrays(docs),
+                 pa.concat_arrays(tiers), np.concatenate(starts), np.concatenate(ends),
+                 pa.concat_arrays(labels), attrs)
+
+
+def _codes(values: pa.Array) -> tuple[np.ndarray, list]:
+    """Codes numbered by first appearance (null is a value of its own) and the values in that order."""
+    enc = pc.dictionary_encode(values, null_encoding="encode")
+    return enc.indices.to_numpy(zero_copy_only=False).astype(np.int64), enc.dictionary.to_pylist()
+
+
+def _overlap_message(rows: _Rows, doc: str, tier: str, a: int, b: int) -> StrataError:
+    return StrataError(f"{tier!r} rows overlap in document {doc!r}: {rows.start[b]:g}-{rows.end[b]:g} s starts "
+                       f"before {rows.start[a]:g}-{rows.end[a]:g} s (line {rows.line[a]}) ends; a tier may not "
+                       "overlap itself", **rows.place(b))
+
+
+def _first_overlap(rows: _Rows, idx: np.ndarray, doc: str, tier_names: list, tier: np.ndarray,
+                   speaker: np.ndarray) -> StrataError:
+    """The overlap the row-by-row check meets first in one document (``idx``: its rows in file order):
+    tiers, then speakers, in order of first appearance; rows by (start, end)."""
+    tiers_here = _codes(pa.array(tier[idx]))[0]
+    for t in range(int(tiers_here.max()) + 1):
+        rows_t = idx[tiers_here == t]
+        speakers_here = _codes(pa.array(speaker[rows_t]))[0]
+        for s in range(int(speakers_here.max()) + 1):
+            grp = rows_t[speakers_here == s]
+            grp = grp[np.lexsort((rows.end[grp], rows.start[grp]))]
+            bad = np.flatnonzero(rows.start[grp[1:]] < rows.end[grp[:-1]] - EPS)
+            if bad.size:
+                k = int(bad[0])
+                return _overlap_message(rows, doc, tier_names[tier[grp[k]]], int(grp[k]), int(grp[k + 1]))
+    raise AssertionError("no overlap found where the column check saw one")
 
 
 def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> ImportReport:
     """Import tier tables; raises StrataError (file:line) on the first bad row."""
     report = ImportReport()
     unit = time_unit(options.extra)
-    docs: dict[str, dict[str, _Tier]] = {}
-    first_line: dict[str, int] = {}
-    source_of: dict[str, Path] = {}
-    attr_cols: list[str] = []
+    paths = [Path(p) for p in paths]
     for path in paths:
-        path = Path(path)
         report.files.append(str(path))
         batch.add_source(str(path), sha256_of(path))
-        before = set(docs)
-        for c in _read(path, unit, docs, first_line):
-            if c not in attr_cols:
-                attr_cols.append(c)
-        for d in set(docs) - before:
-            source_of[d] = path
-    ords: dict[str, int] = {}
-    touched: set[int] = set()
-    alignments: dict[str, list] = {}
+    rows = _read(paths, unit)
+    n = len(rows.line)
+    doc_code, doc_names = _codes(rows.doc)
+    tier_code, tier_names = _codes(rows.tier)
+    speaker_code = _codes(rows.attrs["speaker"])[0] if "speaker" in rows.attrs else np.zeros(n, np.int64)
+
+    # rows by document (in order of first appearance), tier, then (start, end, file order)
+    order = np.lexsort((rows.end, rows.start, tier_code, doc_code))
+    d_sorted = doc_code[order]
+    t_sorted = tier_code[order]
+    doc_bounds = np.searchsorted(d_sorted, np.arange(len(doc_names) + 1))
+    # overlaps per (document, tier, speaker): sort by speaker as well, then compare neighbours
+    by_speaker = np.lexsort((rows.end, rows.start, speaker_code, tier_code, doc_code))
+    same = ((doc_code[by_speaker[1:]] == doc_code[by_speaker[:-1]])
+            & (tier_code[by_speaker[1:]] == tier_code[by_speaker[:-1]])
+            & (speaker_code[by_speaker[1:]] == speaker_code[by_speaker[:-1]]))
+    overlap = same & (rows.start[by_speaker[1:]] < rows.end[by_speaker[:-1]] - EPS)
+    docs_overlapping = set(doc_code[by_speaker[1:][overlap]].tolist())
+    last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0)
+
     durations = _known_durations(batch)
-    for name, tiers in docs.items():
-        path = source_of[name]
+    layer_of = {t: options.layer(t) for t in tier_names}
+    stored = {layer: docs_with_rows(batch.store, layer) for layer in layer_of.values()}
+    infos: list[DocInfo] = []
+    for d, name in enumerate(doc_names):
         info = batch.existing_document(name)
         if info is None:
+            first = int(np.flatnonzero(doc_code == d)[0])
             raise StrataError(f"unknown document {name!r}: import its text first (CoNLL-U or a transcript)",
-                              file=str(path), line=first_line[name])
-        touched.add(info.doc)
-        last = 0.0
-        for tier, t in tiers.items():
-            _check_overlaps(path, name, tier, t)
-            last = max(last, max(r.end for r in t.rows))
+                              **rows.place(first))
+        idx = order[doc_bounds[d]:doc_bounds[d + 1]]
+        if d in docs_overlapping:
+            raise _first_overlap(rows, np.sort(idx), name, tier_names, tier_code, speaker_code)
         known = durations.get(info.doc)
-        if known is not None and last > known + EPS:
-            row = max((r for t in tiers.values() for r in t.rows), key=lambda r: r.end)
-            raise StrataError(f"time {row.end:g} s is past the end of the recording of {name!r} "
-                              f"({known:g} s, known from an earlier import)", file=str(path), line=row.line)
-        batch.set_duration(info.doc, max(last, known or 0.0))
-        for tier, t in sorted(tiers.items(), key=lambda kv: (kv[0] not in WORD_TIERS, kv[0])):
-            layer = options.layer(tier)
-            if doc_has_rows(batch.store, layer, info.doc):
-                raise StrataError(f"document {name!r} already has a {layer!r} layer; import a second set of "
-                                  "tiers with --prefix NAME", file=str(path), line=t.rows[0].line)
-            if layer not in ords:
-                ords[layer] = next_ord(batch.store, layer)
-                words = tier in WORD_TIERS
-                batch.declare_layer(layer, "token" if words else "span",
-                                    {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words,
-                                     "tier": tier})
-            table, classes = _tier_table(batch, info, tier, t, ords[layer], attr_cols)
-            ords[layer] += table.num_rows
-            batch.write_nodes(layer, "token" if tier in WORD_TIERS else "span", table)
-            if classes is not None:
-                alignments.setdefault(layer, []).append((info, table, classes))
-            report.add(f"{tier} rows", table.num_rows)
+        if known is not None and last_end[d] > known + EPS:
+            raise _past_the_end(rows, np.sort(idx), name, known, tier_code)
+        batch.set_duration(info.doc, max(float(last_end[d]), known or 0.0))
+        here = np.unique(t_sorted[doc_bounds[d]:doc_bounds[d + 1]])
+        for t in sorted(here.tolist(), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
+            if info.doc in stored[layer_of[tier_names[t]]]:
+                first = idx[int(np.searchsorted(t_sorted[doc_bounds[d]:doc_bounds[d + 1]], t))]
+                raise StrataError(f"document {name!r} already has a {layer_of[tier_names[t]]!r} layer; import a "
+                                  "second set of tiers with --prefix NAME", **rows.place(int(first)))
+        infos.append(info)
         report.add("documents")
+
+    ords: dict[str, int] = {}
+    alignments: dict[str, list] = {}
+    for t in sorted(range(len(tier_names)), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
+        tier, layer = tier_names[t], layer_of[tier_names[t]]
+        words = tier in WORD_TIERS
+        ords[layer] = next_ord(batch.store, layer)
+        batch.declare_layer(layer, "token" if words else "span",
+                            {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words, "tier": tier})
+        sel = order[t_sorted == t]          # still by document, then (start, end)
+        table, parts = _tier_table(batch, rows, sel, doc_code[sel], infos, words, ords[layer])
+        ords[layer] += table.num_rows
+        batch.write_nodes(layer, "token" if words else "span", table)
+        if parts:
+            alignments[layer] = parts
+        report.add(f"{tier} rows", table.num_rows)
     accept = bool(options.extra.get("accept_poor_alignment"))
     for layer, parts in alignments.items():
         warning = check_alignment(layer, parts, accept)
         if warning:
             report.warnings.append(warning)
+    touched = {info.doc for info in infos}
 
     def finalise(b: Batch) -> None:
         for layer in ords:
@@ -154,26 +234,58 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     return report
 
 
-def _tier_table(batch: Batch, info: DocInfo, tier: str, t: _Tier, ord0: int, attr_cols: list[str]
-                ) -> tuple[pa.Table, list[str] | None]:
-    n = len(t.rows)
+def _past_the_end(rows: _Rows, idx: np.ndarray, name: str, known: float, tier_code: np.ndarray) -> StrataError:
+    """The row with the latest end, as the row-by-row check picks it (first tier met, then by time)."""
+    tiers_here, _ = _codes(pa.array(tier_code[idx]))
+    pick = idx[np.lexsort((rows.line[idx], rows.end[idx], rows.start[idx], tiers_here))]
+    latest = pick[rows.end[pick] == rows.end[pick].max()][0]
+    return StrataError(f"time {rows.end[latest]:g} s is past the end of the recording of {name!r} "
+                       f"({known:g} s, known from an earlier import)", **rows.place(int(latest)))
+
+
+def _known_durations(batch: Batch) -> dict[int, float]:
+    """Recording lengths known from earlier imports, read once (a catalog query per document costs ~30 ms)."""
+    return dict(batch.store._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL"))
+
+
+def _tier_table(batch: Batch, rows: _Rows, sel: np.ndarray, docs: np.ndarray, infos: list[DocInfo],
+                words: bool, ord0: int) -> tuple[pa.Table, list[tuple]]:
+    """One tier's rows of all documents (``sel``, grouped by document) as a node table; for the
+    words tier also the per-document parts the alignment check reads."""
+    n = len(sel)
     id0 = batch.alloc_ids(n)
-    cols: dict[str, list] = {
-        "id": list(range(id0, id0 + n)), "doc": [info.doc] * n,
-        "t_start": [r.start for r in t.rows], "t_end": [r.end for r in t.rows],
-        "ord": list(range(ord0, ord0 + n)), "label": [r.label for r in t.rows]}
-    for c in attr_cols:
-        cols[c] = [r.attrs.get(c) for r in t.rows]
-    classes = None
-    if tier in WORD_TIERS:
-        al = align_forms(info.text, [r.label for r in t.rows])
-        cols["start"] = (al.start + info.base).tolist()
-        cols["end"] = (al.end + info.base).tolist()
-        cols["align"] = al.cls
-        cols["align_score"] = al.score.tolist()
-        cols["line"] = [r.line for r in t.rows]
-        classes = al.cls
+    take = pa.array(sel)
+    doc_ids = np.array([info.doc for info in infos], dtype=np.int64)[docs]
+    label = rows.label.take(take)
+    cols: dict[str, object] = {
+        "id": np.arange(id0, id0 + n, dtype=np.int64), "doc": doc_ids,
+        "t_start": rows.start[sel], "t_end": rows.end[sel],
+        "ord": np.arange(ord0, ord0 + n, dtype=np.int64), "label": label}
+    for c, values in rows.attrs.items():
+        cols[c] = values.take(take)
+    spans: list[tuple[int, int, list[str]]] = []
+    if words:
+        bounds = np.flatnonzero(np.diff(docs)) + 1
+        cuts = np.concatenate([[0], bounds, [n]]).astype(np.int64)
+        start = np.empty(n, dtype=np.int64)
+        end = np.empty(n, dtype=np.int64)
+        score = np.empty(n, dtype=np.float64)
+        cls: list[str] = []
+        for a, b in zip(cuts[:-1], cuts[1:]):
+            info = infos[docs[a]]
+            al = align_forms(info.text, label.slice(a, b - a).to_pylist())
+            start[a:b] = al.start + info.base
+            end[a:b] = al.end + info.base
+            score[a:b] = al.score
+            cls += al.cls
+            spans.append((int(a), int(b), al.cls))
+        cols["start"], cols["end"] = start, end
+        cols["align"] = pa.array(cls, pa.string())
+        cols["align_score"] = score
+        cols["line"] = rows.line[sel]
     else:
         cols["start"] = pa.nulls(n, pa.int64())
         cols["end"] = pa.nulls(n, pa.int64())
-    return pa.table(cols), classes
+    table = pa.table(cols)
+    parts = [(infos[docs[a]], table.slice(a, b - a), c) for a, b, c in spans]
+    return table, parts
