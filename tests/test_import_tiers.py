@@ -163,3 +163,41 @@ def test_poor_alignment_is_refused_unless_accepted(tmp_path):
     rep = subprocess.run([sys.executable, "-m", "engine.cli", "align-report", str(corpus.path), "--layer", "words"],
                          capture_output=True, text=True)
     assert rep.returncode == 0 and "unaligned" in rep.stdout and "zqxj" in rep.stdout
+
+
+def test_overlap_is_per_speaker_and_reported_at_the_later_row(tmp_path):
+    """Two speakers may talk at once; one speaker's rows overlapping is an error at the later row
+    (in time), naming the earlier one's line. The lines are counted by hand from the text below."""
+    corpus, name, _ = _first_doc(tmp_path)
+    path = tmp_path / "turns.tiers.tsv"
+    path.write_text("doc\ttier\tstart\tend\tlabel\tspeaker\n"
+                    f"{name}\tturns\t0.0\t2.0\ta\tA\n"       # line 2
+                    f"{name}\tturns\t1.0\t3.0\tb\tB\n"       # line 3: overlaps A only, allowed
+                    f"{name}\tturns\t5.0\t6.0\tc\tB\n"       # line 4
+                    f"{name}\tturns\t2.5\t4.0\td\tB\n",      # line 5: starts before line 3 ends
+                    encoding="utf-8")
+    with pytest.raises(StrataError) as e:
+        corpus.import_files([path], progress=False)
+    assert e.value.line == 5 and "(line 3)" in str(e.value) and "overlap" in str(e.value)
+
+
+def test_rows_the_column_reader_refuses_are_read_by_the_row_reader(tmp_path):
+    """Quotes (CSV rules: the ``csv`` module of the standard library) and spaces around numbers
+    (Python's ``float``) are accepted; the stored rows equal those of the clean table."""
+    corpus, name, _ = _first_doc(tmp_path)
+    content, _ = _tiers(corpus, name, 12)
+    clean = tmp_path / "clean.tiers.tsv"
+    clean.write_text(content, encoding="utf-8")
+    corpus.import_files([clean], progress=False)
+    other = Corpus.create(tmp_path / "other")
+    other.import_files([tmp_path / "one.conllu"], progress=False)
+    lines = content.splitlines()
+    odd = [lines[0]] + [line.replace("\t", "\t ", 3).rsplit("\t", 1)[0] + '\t"' + line.rsplit("\t", 1)[1] + '"'
+                        for line in lines[1:]]
+    messy = tmp_path / "messy.tiers.tsv"
+    messy.write_text("\n".join(odd) + "\n", encoding="utf-8")
+    other.import_files([messy], progress=False)
+    query = 'SELECT label, t_start, t_end, start, "end" FROM {} ORDER BY ord'
+    for layer in ("words", "phones", "pauses"):
+        assert (other.connect().execute(query.format(layer)).fetchall()
+                == corpus.connect().execute(query.format(layer)).fetchall())
