@@ -221,6 +221,11 @@ def bench(
     fresh: bool = typer.Option(False, "--fresh", help="import again even when a cached import matches"),
 ) -> None:
     """Time the query suite against hand SQL, a scan floor and pandas on synthetic corpora."""
+    import importlib.util
+    missing = [m for m in ("pandas", "conllu") + (("matplotlib",) if plot else ())
+               if importlib.util.find_spec(m) is None]
+    if missing:
+        raise StrataError(f"the benchmark needs {', '.join(missing)}: install them with pip install -e '.[bench]'")
     from benchmarks.harness import BenchError, _formats, _tokens, run_bench
     try:
         sizes = [n for t in tokens for n in _tokens(t)]
