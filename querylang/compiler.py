@@ -614,6 +614,13 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
         w = ident(words.name)
         n = sb.param(int(context) - 1)
         dcol, ocol, scol, ecol, icol = (ident(x) for x in ("doc", "ord", "start", "end", "id"))
+        if limit_sql:
+            # a few hits: look for context only among the words of their documents (every context
+            # join tests the document), so the ASOF joins sort those words, not the whole layer;
+            # `find t = token(upos = "VERB")` with limit 20 at 1e6 tokens: 116 -> 55 ms
+            ctes.append(f"kw AS MATERIALIZED (SELECT {dcol}, {ocol}, {scol}, {ecol}, {icol} FROM {w} "
+                        f"WHERE {dcol} IN (SELECT DISTINCT _doc0 FROM l))")
+            w = "kw"
         kw_joins = " ".join([
             f"LEFT JOIN (SELECT {dcol}, {ident('base')}, {ident('length')} FROM {d}) AS b0 ON b0.{dcol} = l._doc0",
             f"ASOF LEFT JOIN {w} AS wl ON wl.{dcol} = l._doc0 AND l._hs >= wl.{ecol}",

@@ -257,3 +257,13 @@ def test_gum_surface_forms_with_context(gum):
     hits = corpus.query('find w = word(form matches "(?i)^uh$")', context=3)
     assert len(hits) == want > 0
     assert all(r["match"].lower() == "uh" for r in hits.rows())
+
+
+def test_limited_listing_is_the_head_of_the_full_listing(gum_corpora):
+    """With a limit, context words are looked up among the hits' documents only; same rows."""
+    corpus, _, _ = gum_corpora["dev"]
+    for query in ('find t = token(upos = "VERB")',
+                  'find m = mention(type = "person"), s = sentence where m inside s'):
+        full = corpus.query(query, context=3).rows()
+        head = corpus.query(query, limit=20, context=3).rows()
+        assert len(head) == 20 and head == full[:20]
