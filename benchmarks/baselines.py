@@ -20,7 +20,7 @@ import math
 import threading
 import time
 from pathlib import Path
-from typing import Callable, Iterable
+from typing import Callable
 
 from engine.errors import StrataError
 

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from benchmarks import synth
-from benchmarks.baselines import BaselineError, ParquetLayers, comparable_rows, load_pandas_script, strip_output, timed
+from benchmarks.baselines import ParquetLayers, comparable_rows, load_pandas_script, strip_output, timed
 from engine.errors import StrataError
 
 QUERIES = Path(__file__).resolve().parent / "queries"

@@ -8,8 +8,12 @@ from __future__ import annotations
 
 import tempfile
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.console import Console
+
+if TYPE_CHECKING:
+    from engine import Corpus
 
 DATA = Path(__file__).resolve().parent / "data"
 #: hit tables are shown this wide at least, so the values a query asks for are not dropped
@@ -17,7 +21,7 @@ TABLE_WIDTH = 120
 #: rows of each hit table shown by the demo
 SHOWN_ROWS = 20
 
-#: (file, format, options) in import order; files that are absent are skipped.
+#: (file, format, options) in import order.
 IMPORTS: list[tuple[str, str, dict]] = [
     ("calls.conllu", "conllu", {}),
     ("calls.trees", "brackets", {"layer": "tree"}),
@@ -69,14 +73,11 @@ SHOWCASE: list[tuple[str, str]] = [
 
 def build(corpus: Path | None, console: Console) -> "Corpus":
     from engine import Corpus
-    from engine.importers import IMPORTERS
     if corpus is None:
         corpus = Path(tempfile.mkdtemp(prefix="strata-demo-")) / "calls"
     c = Corpus.create(corpus)
     for name, fmt, options in IMPORTS:
         path = DATA / name
-        if not path.exists() or fmt not in IMPORTERS:
-            continue
         report = c.import_files([path], format=fmt, progress=False, **options)
         counts = ", ".join(f"{v} {k}" for k, v in report.counts.items())
         console.print(f"imported {name} ({fmt}): {counts}")
@@ -87,10 +88,6 @@ def run_demo(corpus: Path | None, console: Console) -> None:
     from engine.cli import print_info
     c = build(corpus, console)
     print_info(c.info())
-    try:
-        import engine.execute  # noqa: F401
-    except ImportError:
-        return
     for number, (explanation, text) in enumerate(SHOWCASE, 1):
         console.print()
         console.rule(f"showcase {number}")

@@ -6,7 +6,7 @@ described in ``corpora_demo.generate``; all files are derived from it.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 
 @dataclass(frozen=True)

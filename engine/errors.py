@@ -54,6 +54,3 @@ class StrataError(Exception):
         text = lines[line - 1]
         return f"query line {line}, column {col}:\n  {text}\n  {' ' * (col - 1)}^"
 
-
-class LenientSkip(Exception):
-    """Raised inside an importer for a bad sentence that --lenient lets it skip."""

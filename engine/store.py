@@ -146,10 +146,6 @@ class Store:
         return [DocInfo(*r) for r in self._rows(
             "SELECT doc, name, base, length, text FROM documents ORDER BY doc")]
 
-    def document(self, name: str) -> DocInfo | None:
-        rows = self._rows("SELECT doc, name, base, length, text FROM documents WHERE name = ?", [name])
-        return DocInfo(*rows[0]) if rows else None
-
     def layer_rows(self, layer: str) -> int:
         return int(self._rows("SELECT coalesce(sum(rows), 0) FROM parts WHERE layer = ?", [layer])[0][0])
 
@@ -251,7 +247,6 @@ class Batch:
         self._docs: list[DocInfo] = []
         self._doc_names: dict[str, DocInfo] = {}
         self._stored_docs: dict[str, DocInfo] | None = None
-        self._stored_names = {n for (n,) in store._rows("SELECT name FROM documents")}
         self._doc_attrs: list[tuple[int, str, str]] = []
         self._writers: dict[str, tuple[str, str, pq.ParquetWriter, Path]] = {}
         self._rows: dict[str, int] = {}
@@ -291,7 +286,7 @@ class Batch:
         """A new document at the end of the global coordinate line."""
         if name in self._doc_names:
             raise StrataError(f"document {name!r} occurs twice in this import")
-        if name in self._stored_names:
+        if self.existing_document(name) is not None:
             raise StrataError(f"document {name!r} is already in the corpus")
         base = self._meta["next_base"]
         info = DocInfo(self._next_doc, name, base, len(text), text)

@@ -309,11 +309,11 @@ def ferry_corpus() -> tuple[duckdb.DuckDBPyConnection, StaticCatalog]:
     for reading in (0, 1):
         root = b.node("phrase", d0, 0, len(s1), f"p{reading}.s", label="S", reading=reading)
         if reading == 0:
-            b.node("phrase", d0, 13, 28, f"p0.np", parent=root, label="NP", reading=0)
-            b.node("phrase", d0, 13, 34, f"p0.vp", parent=root, label="VP", reading=0)
+            b.node("phrase", d0, 13, 28, "p0.np", parent=root, label="NP", reading=0)
+            b.node("phrase", d0, 13, 34, "p0.vp", parent=root, label="VP", reading=0)
         else:
-            vp = b.node("phrase", d0, 13, 34, f"p1.vp", parent=root, label="VP", reading=1)
-            b.node("phrase", d0, 13, 28, f"p1.np", parent=vp, label="NP", reading=1)
+            vp = b.node("phrase", d0, 13, 34, "p1.vp", parent=root, label="VP", reading=1)
+            b.node("phrase", d0, 13, 28, "p1.np", parent=vp, label="NP", reading=1)
     s4 = "yes the ferry has seats"
     d1 = b.doc("call-02", s4, genre="timetable")
     add_sentence(b, d1, s4, 0, [("yes", "INTJ", "discourse", 4), ("the", "DET", "det", 3),

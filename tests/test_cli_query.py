@@ -14,7 +14,6 @@ import json
 import os
 import subprocess
 import sys
-from pathlib import Path
 
 import pyarrow.parquet as pq
 import pytest

@@ -9,7 +9,6 @@ spaces, no final line end.
 from __future__ import annotations
 
 import csv
-from pathlib import Path
 
 import pytest
 from hypothesis import given, settings

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from engine.execute import run_query

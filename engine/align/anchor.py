@@ -187,7 +187,7 @@ def _rewrite(con: duckdb.DuckDBPyConnection, paths: list[Path], out: Path, fills
             repl[col] = f"coalesce(__n.{ident(col)}, __f{k}.{ident(value)})"
     have = {r[0] for r in con.execute("DESCRIBE __n").fetchall()}
     replace = ", ".join(f"CAST({v} AS {_type(con, c)}) AS {ident(c)}" for c, v in repl.items() if c in have)
-    star = f"__n.* EXCLUDE (filename, file_row_number)" + (f" REPLACE ({replace})" if replace else "")
+    star = "__n.* EXCLUDE (filename, file_row_number)" + (f" REPLACE ({replace})" if replace else "")
     con.execute(f"COPY (SELECT {star} FROM __n {' '.join(joins)} ORDER BY __n.filename, __n.file_row_number) "
                 f"TO {sql_str(str(out))} (FORMAT parquet, COMPRESSION zstd, ROW_GROUP_SIZE 122880)")
     rows = con.execute("SELECT count(*) FROM __n").fetchone()[0]

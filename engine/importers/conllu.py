@@ -40,7 +40,6 @@ DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
 BLOCK_BYTES = 64 << 20
 PART_ROWS = 300_000
 COLUMNS = ["cid", "form", "lemma", "upos", "xpos", "feats", "head", "deprel", "deps", "misc"]
-_ITEM_RE = r"\(([^()]+)\)|\(([^()]+)|([^()]+)\)"
 _SHARED_COLUMNS = ("cid", "form", "head", "deps", "misc")
 _RESERVED = set(ANCHOR_COLUMNS) | {"ord", "sent_id", "text", "comments"}
 
@@ -742,7 +741,7 @@ class ConlluImporter:
         self.batch.add_staged(layer, path, table.num_rows)
 
     def _write(self) -> None:
-        N, W, U, E, S, T = self.names, self.W, self.U, self.E, self.S, self.T
+        N, W, U, E, T = self.names, self.W, self.U, self.E, self.T
         c = self.cols
         nul = lambda a: pc.if_else(pc.equal(a, "_"), pa.scalar(None, pa.string()), a)
         masked = lambda v: pa.array(v, mask=v < 0)
