@@ -27,7 +27,7 @@ import pyarrow.compute as pc
 from engine.align.anchor import finalise_new_layer, parquet
 from engine.align.normalise import BRACKET_ESCAPES
 from engine.align.report import check_alignment
-from engine.align.sequence import GOOD, align_forms
+from engine.align.sequence import GOOD, align_forms, align_segments
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.stored import doc_has_rows
@@ -35,6 +35,8 @@ from engine.store import Batch, DocInfo
 
 FORMAT = "brackets"
 DEFAULT_LAYER = "tree"
+#: Rows buffered before a write: row groups of the store's size, not one per document.
+PART_ROWS = 300_000
 EMPTY_LABEL = "-NONE-"
 _INDEX = re.compile(r"(.+?)([-=])(\d+)")
 _TRACE = re.compile(r"(\*.*|0)-(\d+)")
@@ -477,6 +479,8 @@ class BracketsImporter:
         self._docs_by_number: dict[int, DocInfo] | None = None
         self.readings = False
         self.aligned: list[tuple] = []
+        self._pending: list[pa.Table] = []
+        self._pending_rows = 0
         batch.declare_layer(self.layer, "tree", {"tree": True, "format": FORMAT, "readings": False})
 
     def import_file(self, path: Path) -> None:
@@ -544,23 +548,27 @@ class BracketsImporter:
         by_sentence = all(g.sent_span is not None for g in groups)
         if by_sentence:
             groups.sort(key=lambda g: g.sent_span[0])
+        firsts = [ft.tree_words(g.trees[0]) for g in groups]
+        forms = [w for ws in firsts for w in ws]
+        if by_sentence:
+            # the sentences are known: each tree aligns to its own (edit distance does
+            # not reward keeping a word together, so a long stretch of text without
+            # trees would let a word's letters scatter over it); all in one call
+            cuts = np.concatenate([[0], np.cumsum([len(ws) for ws in firsts])])
+            al = align_segments(info.text, forms, cuts,
+                                np.array([g.sent_span[0] - info.base for g in groups], dtype=np.int64),
+                                np.array([g.sent_span[1] - info.base for g in groups], dtype=np.int64))
         else:
             # one alignment per document over the first reading of every tree, in order
-            al = align_forms(info.text, [w for g in groups for w in ft.tree_words(g.trees[0])])
+            al = align_forms(info.text, forms)
         # per emitted tree: its number, reading, group; per written word: span, class, score
         emit, reading, group_of = [], [], []
         w_start, w_end, w_score, w_cls = [], [], [], []
         k = 0
         for gi, g in enumerate(groups):
-            first = ft.tree_words(g.trees[0])
+            first = firsts[gi]
             n = len(first)
-            if by_sentence:
-                # the sentences are known: each tree aligns to its own (edit distance does
-                # not reward keeping a word together, so a long stretch of text without
-                # trees would let a word's letters scatter over it)
-                base = self._align_alone(info, g, first)
-            else:
-                base = (al.start[k:k + n], al.end[k:k + n], al.cls[k:k + n], al.score[k:k + n])
+            base = (al.start[k:k + n], al.end[k:k + n], al.cls[k:k + n], al.score[k:k + n])
             k += n
             for r, tree in enumerate(g.trees):
                 mine = ft.tree_words(tree)
@@ -643,13 +651,25 @@ class BracketsImporter:
             "align_score": pa.array(align_score, mask=~word),
             "line": pa.array(f.line[nodes].astype(np.int64)),
         })
-        self.batch.write_nodes(self.layer, "tree", table)
+        self._stage(table)
         # the alignment report looks only at the written words
         self.aligned.append((info, table.select(["form", "start", "align_score", "line"]).take(pa.array(word_rows)),
                              list(cls)))
         self.report.add("trees", len(emit))
         self.report.add("sentences", len(groups))
         self.report.add("nodes", total)
+
+    def _stage(self, table: pa.Table) -> None:
+        """Buffer a document's rows; a write per ~PART_ROWS rows, not per document (small row groups)."""
+        self._pending.append(table)
+        self._pending_rows += table.num_rows
+        if self._pending_rows >= PART_ROWS:
+            self._flush()
+
+    def _flush(self) -> None:
+        if self._pending:
+            self.batch.write_nodes(self.layer, "tree", pa.concat_tables(self._pending, promote_options="default"))
+        self._pending, self._pending_rows = [], 0
 
     def _traces(self, ft: _FileTrees, nodes: np.ndarray, row_tree: np.ndarray, empty: np.ndarray,
                 index: pa.Array, id0: int) -> tuple[pa.Array, pa.Array]:
@@ -685,6 +705,7 @@ class BracketsImporter:
         return al.start, al.end, al.cls, al.score
 
     def close(self) -> None:
+        self._flush()
         self.batch.set_meta("next_order", self.order)
         kind, props = self.batch._layer_props[self.layer]
         props["readings"] = bool(props.get("readings")) or self.readings
