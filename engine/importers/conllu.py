@@ -33,7 +33,7 @@ from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.treeorder import TreeError, tree_order
 from engine.progress import byte_progress
-from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, Batch
+from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, ROW_GROUP_SIZE, Batch, part_write_options
 
 FORMAT = "conllu"
 DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
@@ -87,8 +87,9 @@ class _Problems:
 class ConlluImporter:
     """Imports CoNLL-U files into one batch; ids, ordinals and bases continue across files."""
 
-    def __init__(self, batch: Batch, options: ImportOptions) -> None:
+    def __init__(self, batch: Batch, options: ImportOptions, part_tag: str = "p") -> None:
         self.batch = batch
+        self.part_tag = part_tag          # staged part names: another process uses another tag
         self.opt = options
         self.report = ImportReport()
         L = options.layer
@@ -132,9 +133,12 @@ class ConlluImporter:
     def _declare(self) -> None:
         n = self.names
         common = {"token_layer": n["token"], "word_layer": n["word"], "format": FORMAT}
-        self.batch.declare_layer(n["token"], "token", {**common, "tree": True, "edge_sets": [n["dep"], n["enhanced"]]})
-        self.batch.declare_layer(n["word"], "token", common)
-        self.batch.declare_layer(n["empty"], "token", common)
+        # FEATS and MISC stay one column each; the store derives feats.KEY and misc.KEY from them
+        kv = {"key_value": ["feats", "misc"]}
+        self.batch.declare_layer(n["token"], "token", {**common, **kv, "tree": True,
+                                                       "edge_sets": [n["dep"], n["enhanced"]]})
+        self.batch.declare_layer(n["word"], "token", {**common, "key_value": ["misc"]})
+        self.batch.declare_layer(n["empty"], "token", {**common, **kv})
         self.batch.declare_layer(n["sentence"], "span", common)
         self.batch.declare_layer(n["mention"], "span", {**common, "coreference": True})
         self.batch.declare_layer(n["dep"], "edges", {"nodes": n["token"]})
@@ -143,8 +147,7 @@ class ConlluImporter:
     # -- files and blocks ----------------------------------------------------------------
     def import_file(self, path: Path) -> None:
         self.path = path
-        self.report.files.append(str(path))
-        self.batch.add_source(str(path), sha256_of(path))
+        self.start_file(path)
         try:
             size = path.stat().st_size
         except OSError as e:
@@ -153,6 +156,16 @@ class ConlluImporter:
             for block, first_line in _blocks(path):
                 self._block(block, first_line)
                 advance(len(block))
+
+    def start_file(self, path: Path) -> None:
+        """Record a source file (once, before its first block)."""
+        self.report.files.append(str(path))
+        self.batch.add_source(str(path), sha256_of(path))
+
+    def import_block(self, path: Path, data: bytes, first_line: int) -> None:
+        """Import one block of whole documents of ``path`` (see :func:`block_plan`)."""
+        self.path = path
+        self._block(data, first_line)
 
     def _block(self, data: bytes, first_line: int) -> None:
         """Import one block of whole documents."""
@@ -734,10 +747,11 @@ class ConlluImporter:
             if name not in required:
                 cols.append(table.column(name))
                 names.append(name)
-        path = self.batch.stage / f"{layer}--p{self.n_part:05d}.parquet"
+        path = self.batch.stage / f"{layer}--{self.part_tag}{self.n_part:05d}.parquet"
         # pyarrow writes without the GIL: the next block is computed meanwhile
-        self._writes.append(self._writer.submit(pq.write_table, pa.Table.from_arrays(cols, names=names), path,
-                                                compression="zstd", row_group_size=122_880))
+        table = pa.Table.from_arrays(cols, names=names)
+        self._writes.append(self._writer.submit(pq.write_table, table, path, row_group_size=ROW_GROUP_SIZE,
+                                                **part_write_options(table.schema)))
         self.batch.add_staged(layer, path, table.num_rows)
 
     def _write(self) -> None:
@@ -762,8 +776,6 @@ class ConlluImporter:
         tok["parent"] = masked(T["parent"])
         tok["depth"] = pa.array(T["depth"], mask=T["depth"] < 0).cast(pa.int32())
         tok["pre"], tok["post"] = masked(T["pre"]), masked(T["post"])
-        tok.update(_flatten("feats", tok["feats"]))
-        tok.update(_flatten("misc", tok["misc"]))
         self.report.add("tokens", self._stage(N["token"], pa.table(tok)))
         # surface words
         ur = pa.array(U["rows"])
@@ -775,7 +787,6 @@ class ConlluImporter:
                 "word_last": U["ord"], "ord": U["ord"], "cid": c["cid"].take(ur), "form": c["form"].take(ur),
                 "mwt": pa.array(is_mwt), "mwt_fields": pc.if_else(pa.array(is_mwt), mwt_fields, null_str),
                 "misc": pc.if_else(pa.array(is_mwt), nul(c["misc"].take(ur)), null_str)}
-        word.update(_flatten("misc", word["misc"]))
         self.report.add("words", self._stage(N["word"], pa.table(word)))
         self.report.add("multiword tokens", int(is_mwt.sum()))
         # empty nodes
@@ -785,8 +796,6 @@ class ConlluImporter:
                  "lemma": self._col("lemma", E["rows"])}
         for name in ("upos", "xpos", "feats", "deps", "misc"):
             empty[name] = nul(self._col(name, E["rows"]))
-        empty.update(_flatten("feats", empty["feats"]))
-        empty.update(_flatten("misc", empty["misc"]))
         self.report.add("empty nodes", self._stage(N["empty"], pa.table(empty)))
         self._write_sentences()
         self._write_edges(tok)
@@ -963,48 +972,43 @@ def _pair_keys(code: np.ndarray, level: np.ndarray, scale: tuple[int, int]) -> n
     return base * scale[1] + rank
 
 
-def _flatten(prefix: str, column: pa.Array) -> dict[str, pa.Array]:
-    """``Key=Value|...`` strings as one column per key (``prefix.Key``), NULL where absent."""
-    n = len(column)
-    filled = pc.fill_null(column, "")
-    items = pc.split_pattern(filled, "|")
-    parent = _np(pc.list_parent_indices(items))
-    flat = items.flatten()
-    if len(flat) == 0:
-        return {}
-    has_value = _np(pc.match_substring(flat, "="))
-    kv = pc.split_pattern(flat.filter(pa.array(has_value)), "=", max_splits=1)
-    parent = parent[has_value]
-    if len(kv) == 0:
-        return {}
-    keys = pc.list_element(kv, 0).dictionary_encode()
-    values = pc.list_element(kv, 1).cast(pa.string())
-    codes = _np(keys.indices)
-    order = np.argsort(codes, kind="stable")
-    bounds = np.searchsorted(codes[order], np.arange(len(keys.dictionary) + 1))
-    null = pa.scalar(None, pa.string())
-    out: dict[str, pa.Array] = {}
-    for code, key in sorted(enumerate(keys.dictionary.to_pylist()), key=lambda kv: kv[1]):
-        if not key:
-            continue
-        sel = order[bounds[code]:bounds[code + 1]]
-        vals = values.take(pa.array(sel))
-        index = np.full(n, len(sel), np.int64)
-        index[parent[sel]] = np.arange(len(sel))
-        col = pa.concat_arrays([vals, pa.array([None], pa.string())]).take(pa.array(index))
-        out[f"{prefix}.{key}"] = pc.if_else(pc.equal(col, ""), null, col)
-    return out
+def block_plan(path: Path, block_bytes: int = BLOCK_BYTES) -> list[tuple[int, int, int, int, int]]:
+    """``(offset, length, first_line, lines, newdocs)`` of the blocks :func:`_blocks` would read.
+
+    The cut points are the same (just before a ``# newdoc`` line) for a given block size.
+    ``lines`` and ``newdocs`` are upper bounds (of the lines, and of the documents less one):
+    a file that fits in one block is not read, its size bounds both.
+    """
+    try:
+        size = path.stat().st_size
+    except OSError as e:
+        raise StrataError(f"cannot read: {e.strerror}", file=str(path)) from None
+    if size < block_bytes:
+        return [(0, size, 1, size + 1, size // len(b"# newdoc") + 1)] if size else []
+    plan = []
+    offset = 0
+    for block, first_line in _blocks(path, block_bytes):
+        n = block.count(b"\n") + (0 if block.endswith(b"\n") else 1)
+        plan.append((offset, len(block), first_line, n, block.count(b"# newdoc")))
+        offset += len(block)
+    return plan
 
 
-def _blocks(path: Path) -> Iterator[tuple[bytes, int]]:
+def read_block(path: Path, offset: int, length: int) -> bytes:
+    with open(path, "rb") as f:
+        f.seek(offset)
+        return f.read(length)
+
+
+def _blocks(path: Path, block_bytes: int = BLOCK_BYTES) -> Iterator[tuple[bytes, int]]:
     """The file in blocks of about BLOCK_BYTES that end just before a ``# newdoc`` line."""
     with open(path, "rb") as f:
         carry = b""
         line = 1
         while True:
-            chunk = f.read(BLOCK_BYTES)
+            chunk = f.read(block_bytes)
             data = carry + chunk
-            if len(chunk) < BLOCK_BYTES:          # the end of the file: the rest is one block
+            if len(chunk) < block_bytes:          # the end of the file: the rest is one block
                 if data:
                     yield data, line
                 return
@@ -1027,7 +1031,14 @@ def _raise_bad_utf8(data: bytes, first_line: int, path: Path) -> None:
 
 
 def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> ImportReport:
-    """Import CoNLL-U files into ``batch``; raises StrataError at the first bad place."""
+    """Import CoNLL-U files into ``batch``; raises StrataError at the first bad place.
+
+    Big inputs are shared with a second process (:mod:`engine.importers.conllu_parallel`);
+    the result is the same as this sequential loop's.
+    """
+    from engine.importers import conllu_parallel
+    if conllu_parallel.worthwhile(paths, options):
+        return conllu_parallel.import_files(batch, [Path(p) for p in paths], options)
     imp = ConlluImporter(batch, options)
     try:
         for path in paths:
