@@ -11,6 +11,7 @@ Only missing values are filled (``coalesce``), so what a layer brought itself wi
 """
 from __future__ import annotations
 
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -145,7 +146,10 @@ def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> i
     except (pa.ArrowInvalid, pa.ArrowTypeError):
         return None
     rows = 0
-    with pq.ParquetWriter(out, schema, compression="zstd") as writer:
+    # pyarrow writes without the GIL: the next row group is filled while one is written
+    pending: list[Future] = []
+    with pq.ParquetWriter(out, schema, **_write_options(schema)) as writer, \
+            ThreadPoolExecutor(max_workers=1) as pool:
         for path in paths:
             for rb in pq.ParquetFile(path).iter_batches(batch_size=ROW_GROUP_SIZE):
                 table = pa.Table.from_batches([rb])
@@ -161,10 +165,21 @@ def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> i
                             old = numeric[col]
                             updates[col] = _from_float(np.where(np.isnan(old), values, old), schema.field(col).type)
                     cols.update(updates)
-                writer.write_table(pa.table([cols[f.name] for f in schema], schema=schema),
-                                   row_group_size=ROW_GROUP_SIZE)
+                if len(pending) >= 2:              # bounded memory: at most two row groups in flight
+                    pending.pop(0).result()
+                pending.append(pool.submit(writer.write_table, pa.table([cols[f.name] for f in schema], schema=schema),
+                                           row_group_size=ROW_GROUP_SIZE))
                 rows += table.num_rows
+        for f in pending:
+            f.result()
     return rows
+
+
+def _write_options(schema: pa.Schema) -> dict:
+    """zstd, dictionaries for string columns only (the unique int64 anchors and ids would
+    overflow a dictionary and fall back page by page: slower and bigger)."""
+    return {"compression": "zstd",
+            "use_dictionary": [f.name for f in schema if pa.types.is_string(f.type) or pa.types.is_large_string(f.type)]}
 
 
 #: The columns the numpy fills read.
@@ -233,11 +248,18 @@ def _reference(sql: str, paths: list[Path], lo: str, hi: str, values: tuple[str,
 
 
 def _node_ranges(c: dict[str, np.ndarray], ref: ranges.Reference, lo: np.ndarray, hi: np.ndarray,
-                 doc: np.ndarray, within: bool) -> tuple[np.ndarray, np.ndarray]:
-    """Reference index range per node, empty where the node has no span or the range is in another document."""
+                 doc: np.ndarray, within: bool, keys: tuple[np.ndarray, np.ndarray] | None = None
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Reference index range per node, empty where the node has no span or the range is in another document.
+
+    ``keys``: ``ref.key`` of ``lo`` and ``hi`` made by the caller (overlap only; NaN bounds give empty ranges).
+    """
     valid = ~np.isnan(lo) & ~np.isnan(hi)
-    lo, hi = np.where(valid, lo, 0), np.where(valid, hi, 0)
-    j, k = (ranges.within_range if within else ranges.overlap_range)(ref, doc, lo, hi)
+    if keys is not None and not within:
+        j, k = ranges.overlap_range_keys(ref, *keys)
+    else:
+        lo, hi = np.where(valid, lo, 0), np.where(valid, hi, 0)
+        j, k = (ranges.within_range if within else ranges.overlap_range)(ref, doc, lo, hi)
     j, k = np.where(valid, j, 0), np.where(valid, k, 0)
     ok = ranges.same_doc(ref, j, k, doc)
     if ok is None:
@@ -255,13 +277,19 @@ def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, ep
         if not need.any() or m == 0:
             return {a: out_a, b: out_b}
         doc, nlo, nhi0 = c["doc"][need], c[lo][need], c[hi][need]
-        nhi = np.where(nhi0 > nlo, nhi0, nlo + eps)
-        j, k = _node_ranges(c, ref, nlo, nhi, doc, within=False)
+        wide = nhi0 > nlo
+        nhi = np.where(wide, nhi0, nlo + eps)
+        # each bound's key once: the cover, before and after lookups share them
+        lo_key, hi0_key = ref.key(doc, nlo), ref.key(doc, nhi0)
+        hi_key = hi0_key.copy()
+        if not wide.all():
+            hi_key[~wide] = ref.key(doc[~wide], nhi[~wide])
+        j, k = _node_ranges(c, ref, nlo, nhi, doc, within=False, keys=(lo_key, hi_key))
         cover_a = ranges.range_reduce(ref.values["a"], j, k, np.fmin)
         cover_b = ranges.range_reduce(ref.values["b"], j, k, np.fmax)
-        ib = ranges.last_ending_by(ref, doc, nlo)
+        ib = ranges.last_ending_by(ref, doc, nlo, lo_key)
         before = ranges.pick(ref.values["b"], np.maximum(ib, 0), ib >= 0)
-        ia = ranges.first_starting_from(ref, doc, nhi0)
+        ia = ranges.first_starting_from(ref, doc, nhi0, hi0_key)
         after = ranges.pick(ref.values["a"], np.maximum(ia, 0), ia >= 0)
         new_a = np.where(np.isnan(cover_a), np.where(np.isnan(before), after, before), cover_a)
         new_b = np.where(np.isnan(cover_b), np.where(np.isnan(before), after, before), cover_b)

@@ -56,8 +56,13 @@ def sorted_reference(doc: np.ndarray, lo: np.ndarray, hi: np.ndarray, values: di
 def overlap_range(ref: Reference, doc: np.ndarray, lo: np.ndarray, hi: np.ndarray
                   ) -> tuple[np.ndarray, np.ndarray]:
     """``[j, k)``: the reference rows of ``doc`` with ``ref.lo < hi`` and ``ref.hi > lo`` (empty when j >= k)."""
-    k = np.searchsorted(ref.lo, ref.key(doc, hi), side="left")
-    j = np.searchsorted(ref.hi, ref.key(doc, lo), side="right")
+    return overlap_range_keys(ref, ref.key(doc, lo), ref.key(doc, hi))
+
+
+def overlap_range_keys(ref: Reference, lo_key: np.ndarray, hi_key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`overlap_range` on keys already made by :meth:`Reference.key` (a caller with several lookups)."""
+    k = np.searchsorted(ref.lo, hi_key, side="left")
+    j = np.searchsorted(ref.hi, lo_key, side="right")
     return j, k
 
 
@@ -69,17 +74,19 @@ def within_range(ref: Reference, doc: np.ndarray, lo: np.ndarray, hi: np.ndarray
     return j, k
 
 
-def last_ending_by(ref: Reference, doc: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """Index of the last reference row of ``doc`` with ``hi <= x``; -1 if none."""
-    i = np.searchsorted(ref.hi, ref.key(doc, x), side="right") - 1
+def last_ending_by(ref: Reference, doc: np.ndarray, x: np.ndarray, x_key: np.ndarray | None = None
+                   ) -> np.ndarray:
+    """Index of the last reference row of ``doc`` with ``hi <= x``; -1 if none (``x_key``: ``ref.key(doc, x)``)."""
+    i = np.searchsorted(ref.hi, ref.key(doc, x) if x_key is None else x_key, side="right") - 1
     ok = (i >= 0) & (ref.doc[np.maximum(i, 0)] == doc) if len(ref.hi) else np.zeros(len(x), dtype=bool)
     return np.where(ok, i, -1)
 
 
-def first_starting_from(ref: Reference, doc: np.ndarray, x: np.ndarray) -> np.ndarray:
+def first_starting_from(ref: Reference, doc: np.ndarray, x: np.ndarray, x_key: np.ndarray | None = None
+                        ) -> np.ndarray:
     """Index of the first reference row of ``doc`` with ``lo >= x``; -1 if none (or ``x`` is NaN)."""
     m = len(ref.lo)
-    i = np.searchsorted(ref.lo, ref.key(doc, x), side="left")
+    i = np.searchsorted(ref.lo, ref.key(doc, x) if x_key is None else x_key, side="left")
     ok = (i < m) & ~np.isnan(x)
     if m:
         ok &= ref.doc[np.minimum(i, m - 1)] == doc

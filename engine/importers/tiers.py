@@ -165,17 +165,18 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     speaker_code = _codes(rows.attrs["speaker"])[0] if "speaker" in rows.attrs else np.zeros(n, np.int64)
 
     # rows by document (in order of first appearance), tier, then (start, end, file order)
-    order = np.lexsort((rows.end, rows.start, tier_code, doc_code))
+    group = doc_code * len(tier_names) + tier_code
+    order = _sort_by_time(group, rows.start, rows.end)
     d_sorted = doc_code[order]
     t_sorted = tier_code[order]
     doc_bounds = np.searchsorted(d_sorted, np.arange(len(doc_names) + 1))
     # overlaps per (document, tier, speaker): sort by speaker as well, then compare neighbours
-    by_speaker = np.lexsort((rows.end, rows.start, speaker_code, tier_code, doc_code))
-    same = ((doc_code[by_speaker[1:]] == doc_code[by_speaker[:-1]])
-            & (tier_code[by_speaker[1:]] == tier_code[by_speaker[:-1]])
-            & (speaker_code[by_speaker[1:]] == speaker_code[by_speaker[:-1]]))
-    overlap = same & (rows.start[by_speaker[1:]] < rows.end[by_speaker[:-1]] - EPS)
-    docs_overlapping = set(doc_code[by_speaker[1:][overlap]].tolist())
+    n_speakers = int(speaker_code.max()) + 1 if n else 1
+    by_speaker = _sort_by_time(group * n_speakers + speaker_code, rows.start, rows.end)
+    key = (group * n_speakers + speaker_code)[by_speaker]
+    s_start, s_end = rows.start[by_speaker], rows.end[by_speaker]
+    overlap = (key[1:] == key[:-1]) & (s_start[1:] < s_end[:-1] - EPS)
+    docs_overlapping = set((key[1:][overlap] // (n_speakers * len(tier_names))).tolist())
     last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0)
 
     durations = _known_durations(batch)
@@ -232,6 +233,20 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         times_onto_stored_layers(b, touched, skip=set(ords))
     batch.on_commit(finalise)
     return report
+
+
+def _sort_by_time(group: np.ndarray, start: np.ndarray, end: np.ndarray) -> np.ndarray:
+    """Row order by ``(group, start, end)``, ties in file order: ``np.lexsort`` of those keys.
+
+    Tier files list each tier's rows in time order as a rule, so a stable sort by the
+    integer group alone usually gives that order already (checked; else the full lexsort).
+    """
+    order = np.argsort(group, kind="stable")
+    g, s, e = group[order], start[order], end[order]
+    same = g[1:] == g[:-1]
+    if not (same & ((s[1:] < s[:-1]) | ((s[1:] == s[:-1]) & (e[1:] < e[:-1])))).any():
+        return order
+    return np.lexsort((end, start, group))
 
 
 def _past_the_end(rows: _Rows, idx: np.ndarray, name: str, known: float, tier_code: np.ndarray) -> StrataError:
