@@ -1,5 +1,9 @@
 """Run a query: compile it through querylang's passes, execute the SQL on DuckDB, return Hits.
 
+A listing with a limit whose hits each lie in one document (the planner's decision, carried
+as ``SqlQuery.window``) runs on a window of the first documents, widened x8 until it has
+the limit's rows; past half of the text one unwindowed run is cheaper and takes over.
+
 The connection must already have the views of DEVELOPERS.md (one per layer and edge set,
 ``documents`` and ``doc``).  Errors in the query are StrataError; a DuckDB error caused by
 the user's input (a regular expression DuckDB's RE2 refuses, a value that does not cast)
@@ -12,11 +16,13 @@ import warnings
 from dataclasses import dataclass
 
 import duckdb
+import pyarrow as pa
 
 from engine.errors import StrataError
 from engine.results import Hits
 from querylang.ast import Query
 from querylang.catalog import Catalog
+from querylang.compiler import DOCUMENTS_VIEW, ident
 from querylang.pipeline import Compilation, run_passes
 
 
@@ -62,10 +68,22 @@ class CompiledQuery:
                 lines.append(f"  {var} = {info.name} (without clause {i + 1}: must not exist)")
         lines += ["", "join order: " + " -> ".join(st.plan.order),
                   "qualifiers: " + (", ".join(sorted(st.checked.query.qualifiers)) or "none"),
-                  f"result: {self.kind}, columns: {', '.join(self.columns)}", "", "sql:"]
+                  f"result: {self.kind}, columns: {', '.join(self.columns)}"]
+        window = st.sql.window
+        if st.sql.locality:
+            lines.append(f"limit: {st.sql.locality}")
+        if window is not None:
+            lines.append(f"  first window: the documents of ~{WINDOW_CANDIDATES_PER_HIT} x limit candidates of "
+                         f"{window.anchor}, then x{WINDOW_GROWTH}; past {WINDOW_MAX_SHARE:.0%} of the text "
+                         f"the plain statement")
+        lines += ["", "sql:"]
         lines += ["  " + part for part in _pretty_sql(self.sql)]
         lines += ["", "parameters:"]
         lines += [f"  ${i + 1} = {p!r}" for i, p in enumerate(self.params)] or ["  none"]
+        if window is not None:
+            lines += ["", f"windowed sql (${window.doc_lo + 1} <= doc < ${window.doc_hi + 1}, "
+                          f"limit ${window.limit + 1} = rows still wanted):"]
+            lines += ["  " + part for part in _pretty_sql(window.sql)]
         if con is not None:
             try:
                 cur = _cursor(con)
@@ -96,13 +114,80 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
               limit: int | None = None, context: int = 5) -> Hits:
     """Every match of ``text`` in document order (or the aggregate it asks for)."""
     compiled = compile_query(text, catalog, limit=limit, context=context)
+    rounds: list[tuple[int, int, int]] = []
     try:
-        table = _fetch_arrow(con, compiled.sql, compiled.params)
+        if compiled.state.sql.window is not None:
+            table, rounds = _run_windowed(con, compiled)
+        else:
+            table = _fetch_arrow(con, compiled.sql, compiled.params)
     except duckdb.Error as err:   # e.g. a value that does not cast; never a traceback
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
                           line=1, column=1) from None
     table = table.rename_columns(compiled.columns)
-    return Hits(table, compiled.kind, text, compiled.sql)
+    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds))
+
+
+WINDOW_CANDIDATES_PER_HIT = 4   # rule of thumb: candidates of the most selective variable per wanted hit
+WINDOW_GROWTH = 8
+WINDOW_MAX_SHARE = 0.5          # a window reaching past this share of the text: run unwindowed instead
+
+
+def _run_windowed(con: duckdb.DuckDBPyConnection, compiled: CompiledQuery) -> tuple[pa.Table, list]:
+    """The first ``limit`` hits from growing windows of documents, or from the plain statement.
+
+    Windows are consecutive document ranges ``[lo, hi)``: their hits are disjoint and each
+    window's hits come after the previous window's in the full order (documents own disjoint,
+    increasing ranges of the global line), so concatenation keeps the order and the LIMIT of
+    each window asks only for the rows still missing.  Returns the table and the windows run
+    as ``(first doc, end doc, rows)``; none when the plain statement answered.
+    """
+    sql = compiled.state.sql
+    window = sql.window
+    assert window is not None and sql.limit_param is not None
+    want = int(sql.params[sql.limit_param])
+    docs = _documents_in_order(con)
+    if docs is None:
+        return _fetch_arrow(con, compiled.sql, compiled.params), []
+    numbers = [d for d, _ in docs]
+    cumulative = [0]
+    for _, length in docs:
+        cumulative.append(cumulative[-1] + length + 1)
+    total = cumulative[-1]
+    estimate = max(compiled.state.plan.estimates.get(window.anchor, 1.0), 1.0)
+    share = WINDOW_CANDIDATES_PER_HIT * want / estimate
+    tables: list[pa.Table] = []
+    rounds: list[tuple[int, int, int]] = []
+    found, lo = 0, 0
+    while True:
+        hi = lo + 1
+        while hi < len(docs) and cumulative[hi] - cumulative[lo] < share * total:
+            hi += 1
+        if cumulative[hi] > WINDOW_MAX_SHARE * total:
+            # also the way out before the last document: hits without any start sort last
+            return _fetch_arrow(con, compiled.sql, compiled.params), []
+        params = list(window.params)
+        params[window.doc_lo], params[window.doc_hi] = numbers[lo], numbers[hi]
+        params[window.limit] = want - found
+        table = _fetch_arrow(con, window.sql, params)
+        tables.append(table)
+        rounds.append((numbers[lo], numbers[hi], table.num_rows))
+        found += table.num_rows
+        if found >= want:
+            return pa.concat_tables(tables), rounds
+        lo, share = hi, share * WINDOW_GROWTH
+
+
+def _documents_in_order(con: duckdb.DuckDBPyConnection) -> list[tuple[int, int]] | None:
+    """(doc, length) by document number, or None when bases do not grow with the number
+    (windows by number would then not follow the hit order)."""
+    cur = _cursor(con)
+    try:
+        rows = cur.execute(f"SELECT doc, base, length FROM {ident(DOCUMENTS_VIEW)} ORDER BY doc").fetchall()
+    finally:
+        cur.close()
+    if not rows or any(b[1] <= a[1] for a, b in zip(rows, rows[1:])):
+        return None
+    return [(doc, length) for doc, _, length in rows]
 
 
 def _cursor(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:

@@ -35,6 +35,8 @@ class Hits:
     kind: str = "hits"
     query: str = ""
     sql: str = field(default="", repr=False)
+    #: document windows a limited listing ran on, as (first doc, end doc, rows); () = one statement
+    windows: tuple[tuple[int, int, int], ...] = field(default=(), repr=False)
 
     def __len__(self) -> int:
         return self.table.num_rows

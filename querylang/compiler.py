@@ -38,7 +38,7 @@ Definitions the SQL implements (the user-facing semantics):
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from querylang import ast
 from querylang.catalog import LayerInfo
@@ -443,11 +443,32 @@ def _unit_of(e: ast.Expr) -> str | None:
 
 
 @dataclass(frozen=True)
+class Window:
+    """The same listing restricted to documents ``lo <= doc < hi`` (parameters ``doc_lo``, ``doc_hi``).
+
+    Hits are ordered by their first character on the global line and every hit lies in one
+    document, so the windowed hits of consecutive document ranges, concatenated, are the
+    first rows of the full listing; the execution layer widens the window until the limit
+    is reached (see ``engine.execute``).  ``anchor`` is the most selective variable.
+    """
+
+    sql: str
+    params: list[object]
+    doc_lo: int                 # indexes into params
+    doc_hi: int
+    limit: int
+    anchor: str
+
+
+@dataclass(frozen=True)
 class SqlQuery:
     sql: str
     params: list[object]
     columns: list[str]          # result column names, in order (renaming c0, c1, ...)
     kind: str                   # "hits" or "aggregate"
+    limit_param: int | None = None    # index of the LIMIT value in params
+    window: Window | None = None      # the windowed form of a document-local listing
+    locality: str = ""                # the planner's reason for windowing or not
 
 
 def _reading_groups(checked: Checked) -> dict[str, list[str]]:
@@ -469,9 +490,30 @@ def kwic_layer(checked: Checked) -> LayerInfo | None:
 
 
 def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: int = 5) -> SqlQuery:
-    """The whole statement: matches (m), reading filter (k), output with KWIC."""
+    """The whole statement: matches (m), reading filter (k), output with KWIC.
+
+    A listing with a limit whose hits each lie in one document (``plan.document_local``) also
+    gets a windowed form of the same statement (:class:`Window`) for the execution layer.
+    """
+    plain = _statement(checked, plan, limit, context, windowed=False)
+    q = checked.query
+    eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
+    if plain.kind != "hits" or eff_limit is None or eff_limit <= 0:
+        return plain
+    if not plan.document_local:
+        return replace(plain, locality=plan.locality)
+    w = _statement(checked, plan, limit, context, windowed=True)
+    assert w.limit_param is not None
+    window = Window(w.sql, w.params, doc_lo=0, doc_hi=1, limit=w.limit_param, anchor=plan.order[0])
+    return replace(plain, window=window, locality=plan.locality)
+
+
+def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *, windowed: bool) -> SqlQuery:
+    """One statement; ``windowed`` adds ``lo <= doc < hi`` for every variable as $1 and $2."""
     q = checked.query
     sb = SqlBuilder(checked, plan)
+    if windowed:
+        doc_lo, doc_hi = sb.param(0), sb.param(0)
     main = Scope(dict(plan.aliases), dict(checked.layers), list(plan.order))
     wheres: list[str] = []
 
@@ -488,6 +530,9 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
         sub = Scope(aliases, {**main.layers, **own}, list(own) + copied)
         frm, whr = sb.level(w.bindings + tuple(outer_bindings[v] for v in copied), w.cond, sub)
         links = [f"{copies[v]}.{ident('id')} = {sb.col(main.aliases[v], 'id')}" for v in copied]
+        if windowed:   # a copy is the outer node itself, so it lies in the window too
+            links += [f"{sb.col(copies[v], 'doc')} >= {doc_lo} AND {sb.col(copies[v], 'doc')} < {doc_hi}"
+                      for v in copied]
         wheres.append(f"NOT EXISTS (SELECT 1 FROM {frm} WHERE {' AND '.join([whr] + links)})")
 
     if q.qualifiers & {"same reading", "every reading"}:
@@ -501,6 +546,14 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     # select list of the match level
     select: list[str] = []
     variables = [b.var for b in q.bindings]
+    if windowed:
+        # every variable in the window's documents; a hit whose nodes all lack a start sorts
+        # last in the full listing (NULL _hs), so no window may return it
+        for v in variables:
+            a = main.aliases[v]
+            wheres.append(f"({sb.col(a, 'doc')} >= {doc_lo} AND {sb.col(a, 'doc')} < {doc_hi})")
+        starts_known = " OR ".join(f"{sb.col(main.aliases[v], 'start')} IS NOT NULL" for v in variables)
+        wheres.append(f"({starts_known})")
     for i, v in enumerate(variables):
         a = main.aliases[v]
         select += [f"{sb.col(a, 'id')} AS _id{i}", f"{sb.col(a, 'doc')} AS _doc{i}",
@@ -549,6 +602,7 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
 
     eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
     limit_sql = f" LIMIT {sb.param(int(eff_limit))}" if eff_limit is not None else ""
+    limit_param = len(sb.params) - 1 if eff_limit is not None else None
     order = ", ".join(["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])
 
     if isinstance(out, (ast.Count, ast.Aggregate)):
@@ -570,7 +624,7 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
         else:
             order_by = ""
         sql = f"{with_(ctes, bool(sb.walk_ctes))} SELECT {', '.join(cols)} FROM {last}{group}{order_by}{limit_sql}"
-        return SqlQuery(sql, sb.params, names, "aggregate")
+        return SqlQuery(sql, sb.params, names, "aggregate", limit_param=limit_param)
 
     ctes.append(f"l AS (SELECT * FROM {last} ORDER BY {order}{limit_sql})")
     cols: list[str] = []
@@ -614,10 +668,18 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
         w = ident(words.name)
         n = sb.param(int(context) - 1)
         dcol, ocol, scol, ecol, icol = (ident(x) for x in ("doc", "ord", "start", "end", "id"))
-        if limit_sql:
+        ranges = _has_range_relation(q.where) or any(_has_range_relation(x.cond) for x in q.withouts)
+        if windowed:
+            # context words only from the window's documents; a subquery, not a CTE: see below
+            w = (f"(SELECT {dcol}, {ocol}, {scol}, {ecol}, {icol} FROM {w} "
+                 f"WHERE {dcol} >= {doc_lo} AND {dcol} < {doc_hi})")
+        elif limit_sql and (not ranges or sb.walk_ctes):
             # a few hits: look for context only among the words of their documents (every context
             # join tests the document), so the ASOF joins sort those words, not the whole layer;
-            # `find t = token(upos = "VERB")` with limit 20 at 1e6 tokens: 116 -> 55 ms
+            # `find t = token(upos = "VERB")` with limit 20 at 1e6 tokens: 116 -> 55 ms.
+            # Not with range joins: DuckDB 2.0 plans no IEJoin in a statement that holds a
+            # materialized CTE (this one, and `l` read twice), but a piecewise merge join:
+            # benchmarks/queries/04 as a limit-20 listing at 1e6 tokens took 17 s that way, 0.3 s without
             ctes.append(f"kw AS MATERIALIZED (SELECT {dcol}, {ocol}, {scol}, {ecol}, {icol} FROM {w} "
                         f"WHERE {dcol} IN (SELECT DISTINCT _doc0 FROM l))")
             w = "kw"
@@ -641,4 +703,4 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     select_out = ", ".join(f"{c} AS c{k}" for k, c in enumerate(cols))
     sql = (f"{with_(ctes, bool(sb.walk_ctes))} SELECT {select_out} FROM x AS l {' '.join(joins)} "
            f"ORDER BY {', '.join('l.' + x for x in order.split(', '))}")
-    return SqlQuery(sql, sb.params, names, "hits")
+    return SqlQuery(sql, sb.params, names, "hits", limit_param=limit_param)
