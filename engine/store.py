@@ -560,10 +560,13 @@ class Batch:
         rows = []
         for column in columns:
             c = _ident(column)
+            # split the distinct strings (with their counts), not every row: 0.34 -> 0.02 s for
+            # the FEATS of 1M tokens (a few thousand distinct bundles)
             stats = con.execute(f"""
-                SELECT k, approx_count_distinct(v), count(*) FROM (
-                    SELECT split_part(kv, '=', 1) AS k, nullif(substr(kv, strpos(kv, '=') + 1), '') AS v
-                    FROM (SELECT unnest(string_split({c}, '|')) AS kv FROM {rel} WHERE {c} IS NOT NULL)
+                SELECT k, count(DISTINCT v), sum(n) FROM (
+                    SELECT split_part(kv, '=', 1) AS k, nullif(substr(kv, strpos(kv, '=') + 1), '') AS v, n
+                    FROM (SELECT unnest(string_split(b, '|')) AS kv, n
+                          FROM (SELECT {c} AS b, count(*) AS n FROM {rel} WHERE {c} IS NOT NULL GROUP BY {c}))
                     WHERE contains(kv, '='))
                 WHERE k <> '' GROUP BY k ORDER BY k""").fetchall()
             keys = [k for k, _, _ in stats if f"{column}.{k}" not in physical]

@@ -271,23 +271,27 @@ class ConlluImporter:
         self.head_digit = head_digit
 
     def _comments(self, lines: pa.Array, n: np.ndarray, s: np.ndarray, d: np.ndarray, problems: _Problems) -> None:
-        """Comment lines as a DuckDB table with key, value and whether they describe the document."""
-        con = self.con
-        con.register("com_arrow", pa.table({"n": n, "s": s, "d": d, "line": lines}))
-        con.execute("""
-            CREATE OR REPLACE TABLE com AS
-            SELECT *, (seen_doc AND NOT ended AND NOT is_newdoc) AS doc_level FROM (
-                SELECT *, starts_with(key, 'newdoc') AS is_newdoc,
-                       bool_or(starts_with(key, 'newdoc')) OVER w AS seen_doc,
-                       bool_or(starts_with(key, 'newpar') OR key = 'sent_id') OVER w AS ended
-                FROM (SELECT n, s, d, line,
-                        trim(CASE WHEN contains(line, ' = ') THEN split_part(substr(line, 2), ' = ', 1)
-                                  ELSE split_part(substr(line, 2), '=', 1) END) AS key,
-                        trim(CASE WHEN contains(line, ' = ') THEN substr(line, strpos(line, ' = ') + 3)
-                                  WHEN contains(line, '=') THEN substr(line, strpos(line, '=') + 1) ELSE '' END) AS value
-                      FROM com_arrow)
-                WINDOW w AS (PARTITION BY s ORDER BY n ROWS UNBOUNDED PRECEDING))""")
-        con.unregister("com_arrow")
+        """Comment lines as a table ``com`` (an Arrow table seen by DuckDB) with key, value and
+        whether they describe the document (pyarrow and numpy: DuckDB window functions over
+        them took ~1 s per million tokens)."""
+        # ``# key = value`` (or ``# key=value``); a comment is about the document when it follows
+        # a ``newdoc`` line of its sentence's comment group and no ``newpar`` or ``sent_id`` yet
+        body = pc.utf8_slice_codeunits(lines, 1)
+        key, value = _split_comment(body, " = ")
+        key_eq, value_eq = _split_comment(body, "=")
+        spaced = pc.match_substring(body, " = ")
+        has_eq = pc.match_substring(body, "=")
+        key = pc.utf8_trim(pc.if_else(spaced, key, key_eq), " ")
+        value = pc.utf8_trim(pc.if_else(spaced, value, pc.if_else(has_eq, value_eq, pa.scalar(""))), " ")
+        is_newdoc = _np(pc.starts_with(key, "newdoc"))
+        ends = _np(pc.or_(pc.starts_with(key, "newpar"), pc.equal(key, "sent_id")))
+        first = np.flatnonzero(np.r_[True, s[1:] != s[:-1]]) if len(s) else np.zeros(0, np.int64)
+        lens = np.diff(np.r_[first, len(s)])
+        seen_doc = _seg_cumsum(is_newdoc.astype(np.int64), first, lens) > 0 if len(s) else is_newdoc
+        ended = _seg_cumsum(ends.astype(np.int64), first, lens) > 0 if len(s) else ends
+        self._set_comments(pa.table({"n": n, "s": s, "d": d, "line": lines, "key": key, "value": value,
+                                     "is_newdoc": is_newdoc, "seen_doc": seen_doc, "ended": ended,
+                                     "doc_level": seen_doc & ~ended & ~is_newdoc}))
         # comments after the first token line of their sentence, and comments with no sentence
         tok_s, tok_first_n = self.s[self.seg_starts], self.n[self.seg_starts]
         at = np.searchsorted(tok_s, s)
@@ -296,6 +300,10 @@ class ConlluImporter:
         first = np.where(found, tok_first_n[np.minimum(at, max(len(tok_s) - 1, 0))] if len(tok_s) else 0, 0)
         problems.add(~found, n, s, "comment lines with no token lines after them")
         problems.add(found & (n > first), n, s, "a comment line inside a sentence (comments go before the token lines)")
+
+    def _set_comments(self, table: pa.Table) -> None:
+        self._com = table
+        self.con.register("com", table)
 
     def _check_new_documents(self) -> None:
         """A document that already has these layers needs --prefix: say so before anything else."""
@@ -448,7 +456,8 @@ class ConlluImporter:
                 self.report.skipped.append(f"{self.path}:{line}: {message}")
             keep = ~np.isin(self.s, list(bad))
             self._filter_rows(keep)
-            self.con.execute("DELETE FROM com WHERE s IN (SELECT unnest(?))", [sorted(bad)])
+            com = self._com
+            self._set_comments(com.filter(pa.array(~np.isin(_np(com.column("s")), list(bad)))))
             self._validate_cycles(_Problems())
         return len(self.n) > 0
 
@@ -952,6 +961,13 @@ class ConlluImporter:
             self._writer.shutdown(wait=True)
             self.con.close()
         self.batch.set_meta("next_order", self.order)
+
+
+def _split_comment(body: pa.Array, sep: str) -> tuple[pa.Array, pa.Array]:
+    """Text before and after the first ``sep`` (after: empty when there is none)."""
+    parts = pc.split_pattern(pc.binary_join_element_wise(body, sep, ""), sep, max_splits=1)
+    after = pc.list_element(parts, 1)
+    return pc.list_element(parts, 0), pc.utf8_slice_codeunits(after, 0, -len(sep))
 
 
 def _pair_keys(code: np.ndarray, level: np.ndarray, scale: tuple[int, int]) -> np.ndarray:
