@@ -23,7 +23,7 @@ import pyarrow.parquet as pq
 
 from engine.align import ranges
 from engine.align.sequence import GOOD
-from engine.store import ROW_GROUP_SIZE, Batch
+from engine.store import ANCHOR_COLUMNS, ROW_GROUP_SIZE, Batch
 
 #: Layer props marking a layer whose nodes are the bridge between text and time.
 TIME_WORDS = "time_words"
@@ -51,14 +51,19 @@ def layer_paths(batch: Batch, layer: str) -> list[Path]:
     return staged if staged else batch.store.part_paths(layer)
 
 
-def time_word_paths(batch: Batch) -> list[Path]:
-    """Parts of every layer that bridges text and time (stored, and staged in this batch)."""
+def _time_word_layers(batch: Batch) -> list[str]:
+    """Names of the layers that bridge text and time (stored, and declared in this batch)."""
     names = {n for n, (kind, props) in batch._layer_props.items() if props.get(TIME_WORDS)}
     for name, info in batch.store.layers().items():
         if batch.store.layer_props(name).get(TIME_WORDS):
             names.add(name)
+    return sorted(names)
+
+
+def time_word_paths(batch: Batch) -> list[Path]:
+    """Parts of every layer that bridges text and time (stored, and staged in this batch)."""
     out: list[Path] = []
-    for n in sorted(names):
+    for n in _time_word_layers(batch):
         out += layer_paths(batch, n)
     return out
 
@@ -153,18 +158,7 @@ def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> i
         for path in paths:
             for rb in pq.ParquetFile(path).iter_batches(batch_size=ROW_GROUP_SIZE):
                 table = pa.Table.from_batches([rb])
-                cols = {f.name: (table.column(f.name).cast(f.type) if f.name in table.column_names
-                                 else pa.nulls(table.num_rows, f.type)) for f in schema}
-                for stage in stages:
-                    numeric = {c: _as_float(cols[c]) for c in _NUMERIC if c in cols}
-                    updates: dict[str, pa.Array] = {}
-                    for fill in stage:
-                        for col, values in fill.arrays(numeric).items():
-                            if col not in cols:
-                                continue
-                            old = numeric[col]
-                            updates[col] = _from_float(np.where(np.isnan(old), values, old), schema.field(col).type)
-                    cols.update(updates)
+                cols = _fill_columns(table, schema, stages)
                 if len(pending) >= 2:              # bounded memory: at most two row groups in flight
                     pending.pop(0).result()
                 pending.append(pool.submit(writer.write_table, pa.table([cols[f.name] for f in schema], schema=schema),
@@ -173,6 +167,23 @@ def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> i
         for f in pending:
             f.result()
     return rows
+
+
+def _fill_columns(table: pa.Table, schema: pa.Schema, stages: list[list[Fill]]) -> dict[str, pa.Array]:
+    """The columns of ``schema`` for one slice of rows, with every stage's numpy fills applied."""
+    cols = {f.name: (table.column(f.name).cast(f.type) if f.name in table.column_names
+                     else pa.nulls(table.num_rows, f.type)) for f in schema}
+    for stage in stages:
+        numeric = {c: _as_float(cols[c]) for c in _NUMERIC if c in cols}
+        updates: dict[str, pa.Array] = {}
+        for fill in stage:
+            for col, values in fill.arrays(numeric).items():
+                if col not in cols:
+                    continue
+                old = numeric[col]
+                updates[col] = _from_float(np.where(np.isnan(old), values, old), schema.field(col).type)
+        cols.update(updates)
+    return cols
 
 
 def _write_options(schema: pa.Schema) -> dict:
@@ -367,6 +378,32 @@ def structure_fills(batch: Batch) -> list[Fill]:
                               GROUP BY __n.id""", {first: "a", last: "b"},
                               _token_arrays(ref, first, last) if ref else None))
     return fills
+
+
+def fill_new_rows(batch: Batch, table: pa.Table, *, exclude: set[str] = frozenset()) -> pa.Table | None:
+    """Rows of a time-axis layer completed before they are written (what :func:`finalise_new_layer`
+    would do at commit, without writing and reading them back): characters from the time words
+    (those of the layers in ``exclude`` left out), then sentence and token references.
+
+    ``None`` when a reference is unfit for range lookups: write the rows as they are and
+    finalise at commit (the SQL joins decide).
+    """
+    words = [p for n in _time_word_layers(batch) if n not in exclude for p in layer_paths(batch, n)]
+    stages = [s for s in ([chars_from_times(words)] if words else [], structure_fills(batch)) if s]
+    if not stages or table.num_rows == 0:
+        return table
+    if not all(f.arrays is not None for st in stages for f in st):
+        return None
+    schema = pa.schema([pa.field(n, t) for n, t in ANCHOR_COLUMNS.items()]
+                       + [f for f in table.schema if f.name not in ANCHOR_COLUMNS])
+    pieces = []
+    try:
+        for k in range(0, table.num_rows, ROW_GROUP_SIZE):
+            cols = _fill_columns(table.slice(k, ROW_GROUP_SIZE), schema, stages)
+            pieces.append(pa.table([cols[f.name] for f in schema], schema=schema))
+    except _Fallback:
+        return None
+    return pa.concat_tables(pieces)
 
 
 def finalise_new_layer(batch: Batch, layer: str, *, time_axis: bool) -> None:

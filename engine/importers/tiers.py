@@ -21,7 +21,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from engine.align.anchor import TIME_WORDS, finalise_new_layer, times_onto_stored_layers
+from engine.align.anchor import TIME_WORDS, fill_new_rows, finalise_new_layer, times_onto_stored_layers
 from engine.align.report import check_alignment
 from engine.align.sequence import align_forms
 from engine.errors import StrataError
@@ -207,6 +207,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
 
     ords: dict[str, int] = {}
     alignments: dict[str, list] = {}
+    unfinished: list[str] = []
     for t in sorted(range(len(tier_names)), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
         tier, layer = tier_names[t], layer_of[tier_names[t]]
         words = tier in WORD_TIERS
@@ -216,7 +217,12 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         sel = order[t_sorted == t]          # still by document, then (start, end)
         table, parts = _tier_table(batch, rows, sel, doc_code[sel], infos, words, ords[layer])
         ords[layer] += table.num_rows
-        batch.write_nodes(layer, "token" if words else "span", table)
+        # characters and references filled before the one write (the words tier is written
+        # first, so the other tiers find it staged as their bridge)
+        filled = fill_new_rows(batch, table, exclude={layer} if words else set())
+        if filled is None:
+            unfinished.append(layer)
+        batch.write_nodes(layer, "token" if words else "span", table if filled is None else filled)
         if parts:
             alignments[layer] = parts
         report.add(f"{tier} rows", table.num_rows)
@@ -228,7 +234,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     touched = {info.doc for info in infos}
 
     def finalise(b: Batch) -> None:
-        for layer in ords:
+        for layer in unfinished:
             finalise_new_layer(b, layer, time_axis=True)
         times_onto_stored_layers(b, touched, skip=set(ords))
     batch.on_commit(finalise)
