@@ -70,7 +70,9 @@ class CompiledQuery:
                   "qualifiers: " + (", ".join(sorted(st.checked.query.qualifiers)) or "none"),
                   f"result: {self.kind}, columns: {', '.join(self.columns)}"]
         window = st.sql.window
-        if st.sql.locality:
+        if st.sql.locality and window is None and st.plan.document_local:
+            lines.append(f"limit: none given; a listing with one is {st.sql.locality}")
+        elif st.sql.locality:
             lines.append(f"limit: {st.sql.locality}")
         if window is not None:
             lines.append(f"  first window: the documents of ~{WINDOW_CANDIDATES_PER_HIT} x limit candidates of "

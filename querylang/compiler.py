@@ -498,9 +498,9 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     plain = _statement(checked, plan, limit, context, windowed=False)
     q = checked.query
     eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
-    if plain.kind != "hits" or eff_limit is None or eff_limit <= 0:
+    if plain.kind != "hits":
         return plain
-    if not plan.document_local:
+    if not plan.document_local or eff_limit is None or eff_limit <= 0:
         return replace(plain, locality=plan.locality)
     w = _statement(checked, plan, limit, context, windowed=True)
     assert w.limit_param is not None
