@@ -119,3 +119,15 @@ def test_overlapping_reference_is_refused() -> None:
     """Two word layers mixed (ends not non-decreasing by start): no range lookup, the join decides."""
     doc = np.zeros(3)
     assert ranges.sorted_reference(doc, np.array([0.0, 1.0, 2.0]), np.array([5.0, 2.0, 3.0]), {}) is None
+
+
+def test_rows_already_in_order_skip_the_sort_and_match_lexsort():
+    """``_in_order`` says yes exactly when numpy's lexsort would return the identity."""
+    from engine.align.ranges import _in_order
+    rng = np.random.default_rng(7)
+    for _ in range(200):
+        keys = tuple(rng.integers(0, 3, 8).astype(np.float64) for _ in range(3))
+        if rng.random() < .5:                          # half of them sorted first
+            order = np.lexsort(keys)
+            keys = tuple(k[order] for k in keys)
+        assert _in_order(keys) == np.array_equal(np.lexsort(keys), np.arange(8))

@@ -44,13 +44,29 @@ def sorted_reference(doc: np.ndarray, lo: np.ndarray, hi: np.ndarray, values: di
                      tie: str | None = None) -> Reference | None:
     """Sort by ``(doc, lo, hi[, tie])``; ``None`` when the ends are then not non-decreasing per doc."""
     keys = (values[tie], hi, lo, doc) if tie else (hi, lo, doc)
-    order = np.lexsort(keys)
     points = np.unique(np.concatenate([lo, hi]))
-    ref = Reference(doc[order], lo[order], hi[order], {k: v[order] for k, v in values.items()}, points)
+    if _in_order(keys):                  # stored layers mostly are: lexsort would return the identity
+        ref = Reference(doc, lo, hi, dict(values), points)
+    else:
+        order = np.lexsort(keys)
+        ref = Reference(doc[order], lo[order], hi[order], {k: v[order] for k, v in values.items()}, points)
     ref.lo, ref.hi = ref.key(ref.doc, ref.lo), ref.key(ref.doc, ref.hi)
     if ref.hi.size > 1 and (np.diff(ref.hi) < 0).any():
         return None
     return ref
+
+
+def _in_order(keys: tuple[np.ndarray, ...]) -> bool:
+    """Are the rows already sorted by ``keys`` (last key primary, as for ``np.lexsort``)?"""
+    if len(keys[0]) < 2:
+        return True
+    tied = np.ones(len(keys[0]) - 1, dtype=bool)        # rows equal on every key so far
+    for k in reversed(keys):
+        a, b = k[:-1], k[1:]
+        if (tied & (b < a)).any():
+            return False
+        tied &= b == a
+    return True
 
 
 def overlap_range(ref: Reference, doc: np.ndarray, lo: np.ndarray, hi: np.ndarray
