@@ -23,7 +23,7 @@ import pyarrow.parquet as pq
 
 from engine.align import ranges
 from engine.align.sequence import GOOD
-from engine.store import ANCHOR_COLUMNS, ROW_GROUP_SIZE, Batch
+from engine.store import ANCHOR_COLUMNS, ROW_GROUP_SIZE, Batch, part_write_options
 
 #: Layer props marking a layer whose nodes are the bridge between text and time.
 TIME_WORDS = "time_words"
@@ -153,7 +153,7 @@ def _rewrite_arrays(paths: list[Path], out: Path, stages: list[list[Fill]]) -> i
     rows = 0
     # pyarrow writes without the GIL: the next row group is filled while one is written
     pending: list[Future] = []
-    with pq.ParquetWriter(out, schema, **_write_options(schema)) as writer, \
+    with pq.ParquetWriter(out, schema, **part_write_options(schema)) as writer, \
             ThreadPoolExecutor(max_workers=1) as pool:
         for path in paths:
             for rb in pq.ParquetFile(path).iter_batches(batch_size=ROW_GROUP_SIZE):
@@ -184,13 +184,6 @@ def _fill_columns(table: pa.Table, schema: pa.Schema, stages: list[list[Fill]]) 
                 updates[col] = _from_float(np.where(np.isnan(old), values, old), schema.field(col).type)
         cols.update(updates)
     return cols
-
-
-def _write_options(schema: pa.Schema) -> dict:
-    """zstd, dictionaries for string columns only (the unique int64 anchors and ids would
-    overflow a dictionary and fall back page by page: slower and bigger)."""
-    return {"compression": "zstd",
-            "use_dictionary": [f.name for f in schema if pa.types.is_string(f.type) or pa.types.is_large_string(f.type)]}
 
 
 #: The columns the numpy fills read.
