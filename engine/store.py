@@ -547,12 +547,12 @@ class Batch:
         (about 14 ms more per million rows for a query that tests one). The key list lives in
         the layer's props (``derived_keys``), which :meth:`Store.create_views` reads.
         """
-        kind, props = self._layer_props.get(layer) or (None, None)
+        props = (self._layer_props.get(layer) or (None, None))[1]
         if props is None:
-            row = con.execute("SELECT kind, props FROM layers WHERE name = ?", [layer]).fetchall()
+            row = con.execute("SELECT props FROM layers WHERE name = ?", [layer]).fetchall()
             if not row:
                 return []
-            kind, props = row[0][0], json.loads(row[0][1])
+            props = json.loads(row[0][0])
         columns = [c for c in props.get("key_value", ()) if c in physical]
         if not columns:
             return []
