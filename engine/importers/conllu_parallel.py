@@ -109,7 +109,8 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     child_start = {k: v + room[k] for k, v in start.items()}
     # a fresh interpreter running this module, not multiprocessing: its "spawn" start would run
     # the caller's main script again in the child, and "fork" is unsafe with DuckDB's threads
-    child = subprocess.Popen([sys.executable, "-m", __name__], stdin=subprocess.PIPE, stdout=subprocess.PIPE)
+    child = subprocess.Popen([sys.executable, "-m", __name__], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                             env=_child_env())
     try:
         pickle.dump((str(batch.store.root), str(batch.stage), second, options, child_start), child.stdin)
         child.stdin.close()
@@ -140,6 +141,15 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     finally:
         child.stdout.close()
     return imp.report
+
+
+def _child_env() -> dict[str, str]:
+    """The caller's environment, with the folder holding ``engine`` first on the module path
+    (strata may run from a source tree that is not installed)."""
+    root = str(Path(__file__).resolve().parents[2])
+    env = dict(os.environ)
+    env["PYTHONPATH"] = os.pathsep.join([root] + ([env["PYTHONPATH"]] if env.get("PYTHONPATH") else []))
+    return env
 
 
 def _sequential(imp: ConlluImporter, blocks: list[Block], options: ImportOptions) -> ImportReport:
