@@ -16,7 +16,7 @@ from typing import Iterable
 from engine.errors import StrataError
 from engine.exporters import EXPORTERS
 from engine.importers import IMPORTERS, SUFFIXES
-from engine.importers.base import ImportOptions, ImportReport
+from engine.importers.base import ImportOptions, ImportReport, import_memory_pool
 from engine.store import Store
 
 
@@ -56,7 +56,7 @@ class Corpus:
             raise StrataError(f"unknown format {fmt!r}; known: {', '.join(sorted(IMPORTERS))}")
         options = ImportOptions(prefix=prefix, lenient=lenient, progress=progress, extra=extra)
         self._forget_connection()
-        with self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra}) as batch:
+        with import_memory_pool(), self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra}) as batch:
             return module.import_files(batch, paths, options)
 
     def export(self, format: str = "conllu", out: str | os.PathLike | None = None, prefix: str = "") -> str | None:

@@ -158,11 +158,21 @@ class Store:
             "SELECT doc, name, base, length, text FROM documents ORDER BY doc")]
 
     def layer_rows(self, layer: str) -> int:
-        return int(self._rows("SELECT coalesce(sum(rows), 0) FROM parts WHERE layer = ?", [layer])[0][0])
+        return sum(int(n or 0) for name, _, n in self._parts() if name == layer)
 
     def part_paths(self, layer: str) -> list[Path]:
-        return [self.root / p for (p,) in self._rows(
-            "SELECT path FROM parts WHERE layer = ? ORDER BY path", [layer])]
+        return [self.root / p for name, p, _ in self._parts() if name == layer]
+
+    def _parts(self) -> list[tuple]:
+        """Every part (layer, path, rows) by path: one catalog query for all layers."""
+        return self._rows("SELECT layer, path, rows FROM parts ORDER BY path")
+
+    def _layer_row(self, name: str) -> tuple | None:
+        """(kind, props) of a layer, from one catalog query for all layers."""
+        for n, kind, props in self._rows("SELECT name, kind, props FROM layers ORDER BY name"):
+            if n == name:
+                return kind, props
+        return None
 
     def layers(self) -> dict[str, LayerInfo]:
         """The catalog view of every layer and edge set (cached per Store)."""
@@ -184,8 +194,8 @@ class Store:
         return self._catalog_cache
 
     def layer_props(self, name: str) -> dict:
-        rows = self._rows("SELECT props FROM layers WHERE name = ?", [name])
-        return json.loads(rows[0][0]) if rows else {}
+        row = self._layer_row(name)
+        return json.loads(row[1]) if row else {}
 
     def sentence_attrs(self) -> dict[str, AttrInfo]:
         layer = self.layers().get("sentence")
@@ -348,10 +358,10 @@ class Batch:
         if not _LAYER_NAME.fullmatch(name):
             raise StrataError(f"layer name {name!r} is not allowed: use letters, digits, '_', '-' "
                               "and '.' (for a prefix), starting with a letter")
-        existing = self.store._rows("SELECT kind, props FROM layers WHERE name = ?", [name])
-        if existing and existing[0][0] != kind:
-            raise StrataError(f"layer {name!r} exists already as a {existing[0][0]} layer, not {kind}")
-        merged = json.loads(existing[0][1]) if existing else {}
+        existing = self.store._layer_row(name)
+        if existing and existing[0] != kind:
+            raise StrataError(f"layer {name!r} exists already as a {existing[0]} layer, not {kind}")
+        merged = json.loads(existing[1]) if existing else {}
         merged.update(props or {})
         self._layer_props[name] = (kind, merged)
 
@@ -374,10 +384,10 @@ class Batch:
         ``table_or_path`` is an Arrow table, or a Parquet file written under ``self.stage``.
         """
         if layer not in self._layer_props:
-            rows = self.store._rows("SELECT kind, props FROM layers WHERE name = ?", [layer])
-            if not rows:
+            row = self.store._layer_row(layer)
+            if row is None:
                 raise StrataError(f"no layer {layer!r} to replace")
-            self._layer_props[layer] = (rows[0][0], json.loads(rows[0][1]))
+            self._layer_props[layer] = (row[0], json.loads(row[1]))
         for p in self.staged_paths(layer):
             self._rows.pop(str(p), None)
             p.unlink()

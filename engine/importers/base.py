@@ -2,9 +2,13 @@
 from __future__ import annotations
 
 import hashlib
+import os
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Iterator
+
+import pyarrow as pa
 
 from engine.errors import StrataError
 
@@ -70,3 +74,27 @@ def read_lines(path: Path, on_bytes=None) -> Iterator[tuple[int, str]]:
             if text.endswith("\r"):
                 text = text[:-1]
             yield number, text
+
+
+@contextmanager
+def import_memory_pool() -> Iterator[None]:
+    """pyarrow allocates from jemalloc while an import runs (the previous pool afterwards).
+
+    Why: with pyarrow's default (mimalloc here) the CoNLL-U import of 1M tokens spent 2.6 s of
+    system time returning and re-faulting pages, with jemalloc 0.9 s: 8.0 -> 6.1 s in all.
+    ``ARROW_DEFAULT_MEMORY_POOL`` set by the user wins; a pyarrow without jemalloc keeps its pool.
+    """
+    if os.environ.get("ARROW_DEFAULT_MEMORY_POOL"):
+        yield
+        return
+    try:
+        pool = pa.jemalloc_memory_pool()
+    except (NotImplementedError, AttributeError, pa.ArrowException):
+        yield
+        return
+    old = pa.default_memory_pool()
+    pa.set_memory_pool(pool)
+    try:
+        yield
+    finally:
+        pa.set_memory_pool(old)

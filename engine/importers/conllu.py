@@ -597,6 +597,11 @@ class ConlluImporter:
                       end=self.U["end"][seg_u_last], tok_first=tok_ord[seg_w_first], tok_last=tok_ord[seg_w_last],
                       word_first=word_ord[seg_u_first], word_last=word_ord[seg_u_last],
                       s=self.s[self.seg_starts], line=self.n[self.seg_starts])
+        # each sentence rebuilt from its units (the bytes of ``joined``, less the final newline),
+        # to check "# text" against in one comparison
+        sent_off = np.r_[offsets[seg_u_first], offsets[len(u_rows)]].astype(np.int32) if n_sent else np.zeros(1, np.int32)
+        rebuilt = pa.StringArray.from_buffers(n_sent, pa.py_buffer(sent_off), data)
+        self.S["rebuilt"] = pc.utf8_slice_codeunits(rebuilt, 0, -1)
         self.widx_row = widx_row
 
     def _register_documents(self, texts: list[str]) -> None:
@@ -831,22 +836,16 @@ class ConlluImporter:
                 FROM com GROUP BY s) a USING (s)
             ORDER BY o.id""").to_arrow_table()
         con.unregister("sent_arrow")
-        text_lines = table.column("text_line").to_pylist()
+        text_lines = table.column("text_line")
         table = table.drop_columns(["text_line"])
         self.report.add("sentences", self._stage(self.names["sentence"], table))
         # the "# text" comment must equal the rebuilt sentence
-        texts = table.column("text").to_pylist()
-        starts, ends, docs = S["start"], S["end"], S["doc"]
-        by_num = {d.doc: d for d in self.known_docs.values()}
-        for k, t in enumerate(texts):
-            if t is None:
-                continue
-            info = by_num[int(docs[k])]
-            rebuilt = info.text[int(starts[k]) - info.base:int(ends[k]) - info.base]
-            if rebuilt != t:
-                self.report.warnings.append(f"{self.path}:{text_lines[k]}: the '# text' of sentence "
-                                            f"{self.sent_ids.get(int(S['s'][k]))} differs from its tokens joined by "
-                                            "SpaceAfter")
+        differs = pc.fill_null(pc.and_kleene(pc.is_valid(table.column("text")),
+                                             pc.not_equal(table.column("text"), S["rebuilt"])), False)
+        for k in np.flatnonzero(_np(differs)):
+            self.report.warnings.append(f"{self.path}:{text_lines[int(k)].as_py()}: the '# text' of sentence "
+                                        f"{self.sent_ids.get(int(S['s'][k]))} differs from its tokens joined by "
+                                        "SpaceAfter")
 
     def _write_edges(self, tok: dict) -> None:
         W = self.W
@@ -918,13 +917,18 @@ class ConlluImporter:
         """The hyphen-separated fields named by each document's ``global.Entity`` comment."""
         specs = dict(self.con.execute("""
             SELECT d, last(value ORDER BY n) FROM com WHERE key = 'global.Entity' GROUP BY d""").fetchall())
-        doc_spec = np.array([specs.get(int(d), DEFAULT_ENTITY_FIELDS) for d in M["d"]], dtype=object) \
-            if specs else np.full(len(M["d"]), DEFAULT_ENTITY_FIELDS, dtype=object)
         n = len(M["d"])
+        names = sorted(set(specs.values()) | {DEFAULT_ENTITY_FIELDS})
+        code_of = {spec: k for k, spec in enumerate(names)}
+        keys = np.array(sorted(specs), dtype=np.int64)
+        codes = np.array([code_of[specs[k]] for k in keys.tolist()], dtype=np.int64)
+        at = np.minimum(np.searchsorted(keys, M["d"]), max(len(keys) - 1, 0))
+        found = (keys[at] == M["d"]) if len(keys) else np.zeros(n, bool)
+        doc_code = np.where(found, codes[at] if len(keys) else 0, code_of[DEFAULT_ENTITY_FIELDS])
         pieces: dict[str, list[tuple[np.ndarray, pa.Array]]] = {}
-        for spec in sorted(set(doc_spec.tolist())):
+        for spec in sorted({names[c] for c in np.unique(doc_code).tolist()}):
             fields = spec.split("-")
-            rows = np.flatnonzero(doc_spec == spec)
+            rows = np.flatnonzero(doc_code == code_of[spec])
             parts = pc.split_pattern(M["spec"].take(pa.array(rows)), "-", max_splits=len(fields) - 1)
             length = _np(pc.list_value_length(parts))
             for k, name in enumerate(fields[1:], start=1):
@@ -950,11 +954,15 @@ class ConlluImporter:
             out[col] = pc.if_else(pc.equal(column, ""), null, column)
         return out
 
+    def flush(self) -> None:
+        """Start writing what is buffered (the writes run on the background thread)."""
+        for layer in list(self._buffers):
+            self._flush(layer)
+
     def close(self) -> None:
         """Write what is buffered and wait for the staged parts (re-raising a write error)."""
         try:
-            for layer in list(self._buffers):
-                self._flush(layer)
+            self.flush()
             for f in self._writes:
                 f.result()
         finally:

@@ -36,7 +36,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from engine.errors import StrataError
-from engine.importers.base import ImportOptions, ImportReport
+from engine.importers.base import ImportOptions, ImportReport, import_memory_pool
 from engine.importers.conllu import ConlluImporter, block_plan, read_block
 from engine.progress import byte_progress
 from engine.store import DOC_GAP, Batch, DocInfo, Store
@@ -46,7 +46,7 @@ MIN_BYTES = 24 << 20
 #: Block size for the split: small enough that one file of 100 MB still splits evenly.
 SPLIT_BLOCK_BYTES = 16 << 20
 #: The child's share of the bytes: a little under half, for its start-up.
-CHILD_SHARE = 0.46
+CHILD_SHARE = 0.40
 #: ``STRATA_IMPORT_PROCESSES=1`` turns the split off.
 ENV = "STRATA_IMPORT_PROCESSES"
 
@@ -101,22 +101,25 @@ def bounds(blocks: list[Block]) -> dict[str, int]:
 def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> ImportReport:
     blocks = plan(paths)
     first, second = split(blocks)
-    imp = ConlluImporter(batch, options)
     if not second or not first:
-        return _sequential(imp, blocks, options)
-    start = {**batch.counters(), "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
-    room = bounds(first)
-    child_start = {k: v + room[k] for k, v in start.items()}
+        return _sequential(ConlluImporter(batch, options), blocks, options)
     # a fresh interpreter running this module, not multiprocessing: its "spawn" start would run
-    # the caller's main script again in the child, and "fork" is unsafe with DuckDB's threads
+    # the caller's main script again in the child, and "fork" is unsafe with DuckDB's threads.
+    # It starts first: its interpreter loads while this process sets up.
     child = subprocess.Popen([sys.executable, "-m", __name__], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                              env=_child_env())
+    imp = None
     try:
+        imp = ConlluImporter(batch, options)
+        start = {**batch.counters(), "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
+        room = bounds(first)
+        child_start = {k: v + room[k] for k, v in start.items()}
         pickle.dump((str(batch.store.root), str(batch.stage), second, options, child_start), child.stdin)
         child.stdin.close()
         total = sum(b.length for b in blocks)
         with byte_progress(total, f"import {len(paths)} files", options.progress) as advance:
             _run(imp, first, advance)
+            imp.flush()                        # the last parts are written while the child finishes
             try:
                 result = pickle.load(child.stdout)
             except (EOFError, pickle.UnpicklingError):   # the child died without a word (killed, out of memory)
@@ -134,7 +137,8 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             child.kill()
         child.wait()
         try:
-            imp.close()
+            if imp is not None:
+                imp.close()
         except Exception:
             pass
         raise
@@ -264,7 +268,9 @@ def _child_main() -> None:
     sys.stdout = sys.stderr              # nothing else may write to the result stream
     try:
         root, stage, blocks, options, start = pickle.load(sys.stdin.buffer)
-        pickle.dump(_child_import(root, stage, blocks, options, start), out)
+        with import_memory_pool():
+            result = _child_import(root, stage, blocks, options, start)
+        pickle.dump(result, out)
     finally:
         out.flush()
 
