@@ -12,7 +12,8 @@ Each measurement runs in a child process of its own, so the peak resident memory
 (``ru_maxrss`` of that process, plus that of its own largest child: strata's import runs the
 second half of a big input in a second process) belongs to that measurement alone. Times are
 of the work only; interpreter start and module imports are excluded from both (strata's
-second process starts inside the timed work, so its start is included). Goal (issue 2): strata at least 3x faster than the parse alone.
+second process starts inside the timed work, so its start is included). Goal (issue 2):
+strata at least 3x faster than the parse alone.
 
     python -m benchmarks.import_bench [--tokens 1000000] [--repeat 1] [--json out.json]
 """

@@ -747,7 +747,7 @@ class ConlluImporter:
         buf = self._buffers.pop(layer, [])
         if not buf:
             return
-        # blocks may carry different FEATS/MISC keys: missing columns become NULL
+        # blocks may carry different comment keys (sentence attributes): missing columns become NULL
         table = pa.concat_tables(buf, promote_options="default") if len(buf) > 1 else buf[0]
         self.n_part += 1
         kind = self.batch.layer_kind(layer)

@@ -65,6 +65,7 @@ def worthwhile(paths: list[Path], options: ImportOptions) -> bool:
     """Two processes pay off for big inputs on a machine with two cores or more.
 
     ``--lenient`` stays sequential: which sentences it skips can depend on the first half.
+    ``STRATA_IMPORT_PROCESSES=2`` splits whatever the size (the tests use it).
     """
     if options.lenient or os.environ.get(ENV, "") == "1" or (os.cpu_count() or 1) < 2:
         return False
@@ -125,7 +126,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             except (EOFError, pickle.UnpicklingError):   # the child died without a word (killed, out of memory)
                 result = {"error": "the second import process ended early"}
             child.wait()
-            if not _adoptable(result, imp, batch, start, child_start):
+            if not _adoptable(result, imp, batch, child_start):
                 _discard(batch, "q")
                 _run(imp, second, advance)
             else:
@@ -174,7 +175,7 @@ def _run(imp: ConlluImporter, blocks: list[Block], advance=lambda n: None) -> No
         advance(b.length)
 
 
-def _adoptable(result: dict, imp: ConlluImporter, batch: Batch, start: dict, child_start: dict) -> bool:
+def _adoptable(result: dict, imp: ConlluImporter, batch: Batch, child_start: dict) -> bool:
     """The child's work stands if it finished and shares no names with the first half."""
     if "error" in result:
         return False
