@@ -27,9 +27,11 @@ QUERIES = [
 
 @pytest.fixture
 def split_small(monkeypatch):
-    """Force the split on small files: blocks of ~256 KB, the child from the first half on."""
+    """Force the split on small files: blocks of ~256 KB, the main process stops at half of
+    the bytes (alone it would often be done before the child has started)."""
     monkeypatch.setattr(conllu_parallel, "MIN_BYTES", 0)
     monkeypatch.setattr(conllu_parallel, "SPLIT_BLOCK_BYTES", 256 << 10)
+    monkeypatch.setattr(conllu_parallel, "MAIN_MAX_SHARE", 0.5)
     monkeypatch.delenv(conllu_parallel.ENV, raising=False)
 
 
@@ -156,3 +158,77 @@ def test_bounds_cover_what_a_half_uses(tmp_path, split_small, monkeypatch):
         con.close()
     for value, key in zip(used, ("next_id", "next_chain", "next_base", "tok_ord", "order")):
         assert value <= room[key], key
+
+
+def _stand_in_child(monkeypatch, code: str) -> None:
+    """Start ``code`` instead of the real second process (it never claims a block)."""
+    real = conllu_parallel.subprocess.Popen
+
+    def popen(args, **kw):
+        return real([args[0], "-c", code], **kw)
+    monkeypatch.setattr(conllu_parallel.subprocess, "Popen", popen)
+
+
+def test_a_child_that_claims_nothing_leaves_every_block_to_the_main_process(tmp_path, split_small, monkeypatch):
+    """The main process claims every block and stops the idle child instead of waiting for it."""
+    monkeypatch.setattr(conllu_parallel, "MAIN_MAX_SHARE", None)
+    _stand_in_child(monkeypatch, "import time; time.sleep(60)")
+    files = [gum_file("dev")]
+    one = _import(tmp_path, "one", files, False, monkeypatch)
+    two = _import(tmp_path, "two", files, True, monkeypatch)
+    assert not any(Path(p).name.split("-")[-1].startswith("q") for p in _parts(two))
+    out = tmp_path / "two.conllu"
+    two.export("conllu", out)
+    assert out.read_bytes() == files[0].read_bytes()
+    for layer, info in one.store.layers().items():
+        assert two.store.layers()[layer].rows == info.rows, layer
+
+
+@pytest.mark.parametrize("code", ["import sys; sys.stdin.buffer.read(); sys.exit(3)",   # dies after the task
+                                  "import sys; sys.exit(3)"])                           # dies before it
+def test_a_child_that_dies_leaves_its_blocks_to_the_main_process(tmp_path, split_small, monkeypatch, code):
+    """The main process stops at half (MAIN_MAX_SHARE), finds the child gone (no result, or a
+    closed pipe) and imports the rest itself."""
+    _stand_in_child(monkeypatch, code)
+    files = [gum_file("dev")]
+    two = _import(tmp_path, "two", files, True, monkeypatch)
+    out = tmp_path / "two.conllu"
+    two.export("conllu", out)
+    assert out.read_bytes() == files[0].read_bytes()
+
+
+def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_path, split_small, monkeypatch):
+    """The child works from the last block down; its parts are still named and listed in file
+    order (ids and anchors increase along the catalog's parts), and the import report (files,
+    counts, warnings) is the one-process report."""
+    def text_differs(lines):
+        # a '# text' that disagrees with its tokens, in several late sentences: one warning each
+        at = [i for i, x in enumerate(lines) if x.startswith("# text = ")]
+        for i in at[-40::8]:
+            lines[i] += " (edited)"
+    bad = _late_copy(tmp_path, text_differs)
+    files = [gum_file("dev"), bad]
+    reports = {}
+    for name, parallel in (("one", False), ("two", True)):
+        monkeypatch.setenv(conllu_parallel.ENV, "2" if parallel else "1")
+        corpus = Corpus.create(tmp_path / name)
+        reports[name] = corpus.import_files(files, progress=False)
+    assert len(reports["one"].warnings) == 5
+    for key in ("files", "counts", "warnings", "skipped"):
+        assert getattr(reports["one"], key) == getattr(reports["two"], key), key
+    two = Corpus.open(tmp_path / "two")
+    con = two.store.catalog_connection()
+    try:
+        token_parts = [str(two.path / p) for (p,) in con.execute(
+            "SELECT path FROM parts WHERE layer = 'token' ORDER BY rowid").fetchall()]
+    finally:
+        con.close()
+    assert any(Path(p).name.split("-")[-1].startswith("q") for p in token_parts)
+    import duckdb
+    firsts = duckdb.sql(f"SELECT min(id), max(id), min(start), max(\"end\") FROM read_parquet({token_parts!r}, "
+                        "filename = true) GROUP BY filename ORDER BY min(id)").fetchall()
+    order = duckdb.sql(f"SELECT filename FROM read_parquet({token_parts!r}, filename = true) "
+                       "GROUP BY filename ORDER BY min(id)").fetchall()
+    assert [f for (f,) in order] == token_parts                   # catalog order = id order
+    for (lo, hi, s0, e0), (lo2, _, s1, _) in zip(firsts, firsts[1:]):
+        assert hi < lo2 and e0 <= s1

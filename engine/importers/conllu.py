@@ -109,9 +109,14 @@ class ConlluImporter:
         self.docs_with_tokens = {r[0] for r in self._rows(self.names["token"], "SELECT DISTINCT doc FROM {}")}
         self.known_docs = {d.name: d for d in batch.store.documents()}
         self.n_part = 0
+        # the number of the block being imported, and whether blocks come in descending order
+        # (the second process of a parallel import works from the end): buffered rows are
+        # written in block order and such parts are named by their first block
+        self.block_no = 0
+        self.descending = False
         self._writer = ThreadPoolExecutor(max_workers=1)
         self._writes: list = []
-        self._buffers: dict[str, list[pa.Table]] = {}
+        self._buffers: dict[str, list[tuple[int, pa.Table]]] = {}
         self._declare()
 
     # -- set-up ------------------------------------------------------------------------
@@ -738,8 +743,8 @@ class ConlluImporter:
         if table.num_rows == 0:
             return 0
         buf = self._buffers.setdefault(layer, [])
-        buf.append(table)
-        if sum(t.num_rows for t in buf) >= PART_ROWS:
+        buf.append((self.block_no, table))
+        if sum(t.num_rows for _, t in buf) >= PART_ROWS:
             self._flush(layer)
         return table.num_rows
 
@@ -747,9 +752,12 @@ class ConlluImporter:
         buf = self._buffers.pop(layer, [])
         if not buf:
             return
+        buf.sort(key=lambda item: item[0])       # stable: the blocks in file order
+        tables = [t for _, t in buf]
         # blocks may carry different comment keys (sentence attributes): missing columns become NULL
-        table = pa.concat_tables(buf, promote_options="default") if len(buf) > 1 else buf[0]
+        table = pa.concat_tables(tables, promote_options="default") if len(tables) > 1 else tables[0]
         self.n_part += 1
+        number = buf[0][0] if self.descending else self.n_part
         kind = self.batch.layer_kind(layer)
         required = EDGE_COLUMNS if kind == "edges" else ANCHOR_COLUMNS
         cols, names = [], []
@@ -761,7 +769,7 @@ class ConlluImporter:
             if name not in required:
                 cols.append(table.column(name))
                 names.append(name)
-        path = self.batch.stage / f"{layer}--{self.part_tag}{self.n_part:05d}.parquet"
+        path = self.batch.stage / f"{layer}--{self.part_tag}{number:05d}.parquet"
         # pyarrow writes without the GIL: the next block is computed meanwhile
         table = pa.Table.from_arrays(cols, names=names)
         self._writes.append(self._writer.submit(pq.write_table, table, path, row_group_size=ROW_GROUP_SIZE,

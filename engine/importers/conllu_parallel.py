@@ -1,4 +1,4 @@
-"""CoNLL-U import on two processes: the second half of the input in a child process.
+"""CoNLL-U import on two processes: the main process from the front, a child from the back.
 
 Why: the import is CPU-bound and every step of it (numpy, pyarrow, DuckDB, Parquet
 writing) works on a block of whole documents at a time, so two processes on the two
@@ -8,22 +8,26 @@ between the vectorised steps holds Python's lock.
 How:
 
 1. The blocks of all files (cut just before a ``# newdoc`` line, see
-   :func:`~engine.importers.conllu.block_plan`) are split into two contiguous halves by size.
-2. The child process imports the second half with its counters (node ids, chains,
-   ordinals, tree order numbers, anchors, document numbers) started past an upper bound
-   of what the first half can use: a block of B bytes and L lines has fewer than B nodes,
-   chains and text characters, fewer than L ordinals and 2L order numbers. It writes its
-   Parquet parts into the batch's staging folder under a tag of its own.
-3. Meanwhile the main process imports the first half into the batch as usual; then it
-   adopts the child's documents, parts and counters.
+   :func:`~engine.importers.conllu.block_plan`) are numbered in file order.
+2. Each block owns a range of every counter (node ids, chains, ordinals, tree order
+   numbers, anchors, document numbers) that starts past an upper bound of what the blocks
+   before it can use: a block of B bytes and L lines has fewer than B nodes, chains and
+   text characters, fewer than L ordinals and 2L order numbers (:func:`bounds`).
+3. The main process imports blocks 0, 1, 2, ... into the batch as usual; the child
+   imports the last block, then the one before it, and so on, each from its own counter
+   range, writing its Parquet parts into the batch's staging folder under a tag of its
+   own. A block goes to whoever claims it first (:class:`Claims`: creating a file is
+   atomic), so the two meet wherever their speeds make them meet: a busy core or a slow
+   start of the child costs no idle time on the other.
+4. The main process then adopts the child's documents, parts and counters.
 
-The gap between the halves is harmless: ids need only be unique and increasing, the
-anchors of documents only disjoint, ordinals only consecutive within a document.
+The gaps between blocks are harmless: ids need only be unique and increasing in file
+order, the anchors of documents only disjoint, ordinals only consecutive within a document.
 
-Anything the child cannot decide alone makes the main process import the second half
-itself, so results and error messages are exactly those of the sequential import: a
-document or sentence id that the first half also has, or any error in the child
-(a bad line is then reported by the main process, at its file and line).
+Anything the child cannot decide alone makes the main process import the child's
+blocks itself, so results and error messages are exactly those of the sequential import:
+a document or sentence id that the main process's blocks also have, or any error in the
+child (a bad line is then reported by the main process, at its file and line).
 """
 from __future__ import annotations
 
@@ -43,12 +47,14 @@ from engine.store import DOC_GAP, Batch, DocInfo, Store
 
 #: Smaller inputs are imported in one process: starting the child costs ~0.4 s.
 MIN_BYTES = 24 << 20
-#: Block size for the split: small enough that one file of 100 MB still splits evenly.
-SPLIT_BLOCK_BYTES = 16 << 20
-#: The child's share of the bytes: a little under half, for its start-up.
-CHILD_SHARE = 0.40
+#: Block size: the unit of the work shared between the processes.
+SPLIT_BLOCK_BYTES = 8 << 20
+#: At most this share of the bytes for the main process (None: no limit). The tests set it,
+#: so that the child takes part even when the main process alone would be done first.
+MAIN_MAX_SHARE: float | None = None
 #: ``STRATA_IMPORT_PROCESSES=1`` turns the split off.
 ENV = "STRATA_IMPORT_PROCESSES"
+COUNTERS = ("next_id", "next_chain", "next_base", "next_doc", "tok_ord", "word_ord", "order")
 
 
 @dataclass(frozen=True)
@@ -64,7 +70,7 @@ class Block:
 def worthwhile(paths: list[Path], options: ImportOptions) -> bool:
     """Two processes pay off for big inputs on a machine with two cores or more.
 
-    ``--lenient`` stays sequential: which sentences it skips can depend on the first half.
+    ``--lenient`` stays sequential: which sentences it skips can depend on the other blocks.
     ``STRATA_IMPORT_PROCESSES=2`` splits whatever the size (the tests use it).
     """
     if options.lenient or os.environ.get(ENV, "") == "1" or (os.cpu_count() or 1) < 2:
@@ -79,17 +85,6 @@ def plan(paths: list[Path]) -> list[Block]:
     return [Block(str(p), *b) for p in paths for b in block_plan(p, SPLIT_BLOCK_BYTES)]
 
 
-def split(blocks: list[Block]) -> tuple[list[Block], list[Block]]:
-    """Two contiguous halves; the second (the child's) gets about CHILD_SHARE of the bytes."""
-    total = sum(b.length for b in blocks)
-    seen = 0
-    for k, b in enumerate(blocks):
-        if seen + b.length / 2 > total * (1 - CHILD_SHARE):
-            return blocks[:k], blocks[k:]
-        seen += b.length
-    return blocks, []
-
-
 def bounds(blocks: list[Block]) -> dict[str, int]:
     """Upper bounds of what importing ``blocks`` can use of each counter (see the module docstring)."""
     size = sum(b.length for b in blocks)
@@ -99,10 +94,41 @@ def bounds(blocks: list[Block]) -> dict[str, int]:
             "next_doc": docs + 1, "tok_ord": lines + 1, "word_ord": lines + 1, "order": 2 * lines + 2}
 
 
+def block_starts(blocks: list[Block], start: dict[str, int]) -> list[dict[str, int]]:
+    """Where each block's counters start: past the bounds of all blocks before it
+    (``start`` plus :func:`bounds` of the blocks before, block by block)."""
+    out = []
+    size = lines = docs = 0
+    for b in blocks:
+        room = {"next_id": size + 1, "next_chain": size + 1, "next_base": size + docs * (DOC_GAP + 1) + 1,
+                "next_doc": docs + 1, "tok_ord": lines + 1, "word_ord": lines + 1, "order": 2 * lines + 2}
+        out.append({k: start[k] + room[k] for k in COUNTERS})
+        size, lines, docs = size + b.length, lines + b.lines, docs + b.newdocs + 1
+    return out
+
+
+class Claims:
+    """Who imports which block: the first process to create ``claim-N`` in the folder.
+
+    ``os.open`` with ``O_CREAT | O_EXCL`` either creates the file or fails, atomically, so
+    each block is claimed exactly once. The main process claims upwards and the child
+    downwards, so each side's blocks stay one contiguous run.
+    """
+
+    def __init__(self, folder: Path) -> None:
+        self.folder = folder
+
+    def claim(self, block: int) -> bool:
+        try:
+            os.close(os.open(self.folder / f"claim-{block:05d}", os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+            return True
+        except FileExistsError:
+            return False
+
+
 def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> ImportReport:
     blocks = plan(paths)
-    first, second = split(blocks)
-    if not second or not first:
+    if len(blocks) < 2:
         return _sequential(ConlluImporter(batch, options), blocks, options)
     # a fresh interpreter running this module, not multiprocessing: its "spawn" start would run
     # the caller's main script again in the child, and "fork" is unsafe with DuckDB's threads.
@@ -113,24 +139,40 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     try:
         imp = ConlluImporter(batch, options)
         start = {**batch.counters(), "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
-        room = bounds(first)
-        child_start = {k: v + room[k] for k, v in start.items()}
-        pickle.dump((str(batch.store.root), str(batch.stage), second, options, child_start), child.stdin)
-        child.stdin.close()
+        claims_dir = batch.stage / "claims"
+        claims_dir.mkdir()
+        claims = Claims(claims_dir)
         total = sum(b.length for b in blocks)
+        limit = total if MAIN_MAX_SHARE is None else MAIN_MAX_SHARE * total
+        try:
+            pickle.dump((str(batch.store.root), str(batch.stage), blocks, options, start), child.stdin)
+            child.stdin.close()
+        except OSError:                        # the child is gone already: every block is ours
+            limit = total
         with byte_progress(total, f"import {len(paths)} files", options.progress) as advance:
-            _run(imp, first, advance)
+            mine, done = 0, 0
+            while mine < len(blocks) and done + blocks[mine].length <= limit and claims.claim(mine):
+                imp.block_no = mine
+                _run(imp, [blocks[mine]], advance)
+                done += blocks[mine].length
+                mine += 1
+            theirs = blocks[mine:]
+            if not theirs:                      # all blocks were imported here: the child has none
+                child.kill()
+                child.wait()
+                imp.close()
+                return imp.report
             imp.flush()                        # the last parts are written while the child finishes
             try:
                 result = pickle.load(child.stdout)
             except (EOFError, pickle.UnpicklingError):   # the child died without a word (killed, out of memory)
                 result = {"error": "the second import process ended early"}
             child.wait()
-            if not _adoptable(result, imp, batch, child_start):
+            if not _adoptable(result, imp, batch, block_starts(blocks, start)[mine], mine):
                 _discard(batch, "q")
-                _run(imp, second, advance)
+                _run(imp, theirs, advance)
             else:
-                advance(sum(b.length for b in second))
+                advance(sum(b.length for b in theirs))
                 _adopt(result, imp, batch)
         imp.close()
     except BaseException:
@@ -175,13 +217,16 @@ def _run(imp: ConlluImporter, blocks: list[Block], advance=lambda n: None) -> No
         advance(b.length)
 
 
-def _adoptable(result: dict, imp: ConlluImporter, batch: Batch, child_start: dict) -> bool:
-    """The child's work stands if it finished and shares no names with the first half."""
+def _adoptable(result: dict, imp: ConlluImporter, batch: Batch, child_start: dict, first_block: int) -> bool:
+    """The child's work stands if it finished, imported exactly the blocks the main process
+    left, and shares no names with them."""
     if "error" in result:
         return False
     end = {**batch.counters(), "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
     if any(end[k] > child_start[k] for k in child_start):     # a bound was wrong: never seen
-        raise RuntimeError(f"the first half of the import overran its counters: {end} > {child_start}")
+        raise RuntimeError(f"the main process's blocks overran their counters: {end} > {child_start}")
+    if result["first_block"] != first_block:                 # never seen: claims are exclusive
+        raise RuntimeError(f"the child imported from block {result['first_block']}, not {first_block}")
     names = {name for _, name, *_ in result["documents"]}
     if names & batch.document_names():
         return False
@@ -197,7 +242,7 @@ def _adopt(result: dict, imp: ConlluImporter, batch: Batch) -> None:
     for layer, path, rows in result["parts"]:
         batch.add_staged(layer, Path(path), rows)
     batch.advance_counters(result["counters"])
-    imp.order = max(imp.order, result["order"])
+    imp.order = max(imp.order, result["counters"]["order"])
     imp.report.merge(result["report"])
 
 
@@ -208,17 +253,33 @@ def _discard(batch: Batch, tag: str) -> None:
 
 # -- the child process ------------------------------------------------------------------
 class _ChildBatch:
-    """What :class:`ConlluImporter` needs of a batch, recorded for the main process to adopt."""
+    """What :class:`ConlluImporter` needs of a batch, recorded for the main process to adopt.
 
-    def __init__(self, store: Store, stage: Path, start: dict[str, int]) -> None:
+    Blocks come in descending order, each with counters of its own (:meth:`start_block`);
+    what is recorded is put back in file order at the end (:meth:`result`).
+    """
+
+    def __init__(self, store: Store, stage: Path) -> None:
         self.store = store
         self.stage = stage
-        self.next = dict(start)
+        self.next: dict[str, int] = {}
+        self.block = -1
         self.kinds: dict[str, str] = {}
         self.documents: list[tuple] = []
-        self.sources: list[tuple[str, str]] = []
+        self.sources: list[tuple[int, str, str]] = []
         self.parts: list[tuple[str, str, int]] = []
-        self.order = start["order"]
+        self.ends: dict[str, int] = {}
+
+    def start_block(self, block: int, start: dict[str, int], imp: ConlluImporter) -> None:
+        self.block = block
+        self.next = {k: start[k] for k in ("next_id", "next_chain", "next_base", "next_doc")}
+        imp.tok_ord, imp.word_ord, imp.order = start["tok_ord"], start["word_ord"], start["order"]
+        imp.block_no = block
+
+    def end_block(self, imp: ConlluImporter) -> None:
+        used = {**self.next, "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
+        for k, v in used.items():
+            self.ends[k] = max(self.ends.get(k, v), v)
 
     def declare_layer(self, name: str, kind: str, props: dict | None = None) -> None:
         self.kinds[name] = kind
@@ -244,14 +305,23 @@ class _ChildBatch:
         return info
 
     def add_source(self, path: str, sha256: str) -> None:
-        self.sources.append((path, sha256))
+        self.sources.append((self.block, path, sha256))
 
     def add_staged(self, layer: str, path: Path, rows: int) -> None:
         self.parts.append((layer, str(path), rows))
 
     def set_meta(self, key: str, value: int) -> None:
-        if key == "next_order":
-            self.order = value
+        pass                                   # next_order: the ends of the blocks say it
+
+
+def _in_file_order(report: ImportReport, spans: list[tuple[int, dict[str, int]]]) -> ImportReport:
+    """The child's report with its per-block files, warnings and skipped lines in block order."""
+    out = ImportReport(counts=dict(report.counts))
+    for _, at in sorted(spans, key=lambda s: s[0]):
+        for key in ("files", "warnings", "skipped"):
+            lo, hi = at[key]
+            getattr(out, key).extend(getattr(report, key)[lo:hi])
+    return out
 
 
 class _NoPandas:
@@ -278,17 +348,28 @@ def _child_main() -> None:
 
 def _child_import(root: str, stage: str, blocks: list[Block], options: ImportOptions,
                   start: dict[str, int]) -> dict:
+    """Claim and import blocks from the last one down, until the main process has the next."""
     try:
-        batch = _ChildBatch(Store(Path(root)), Path(stage), start)
+        batch = _ChildBatch(Store(Path(root)), Path(stage))
+        claims = Claims(Path(stage) / "claims")
+        starts = block_starts(blocks, start)
         imp = ConlluImporter(batch, options, part_tag="q")
-        imp.tok_ord, imp.word_ord, imp.order = start["tok_ord"], start["word_ord"], start["order"]
+        imp.descending = True
+        spans: list[tuple[int, dict[str, int]]] = []
+        first = len(blocks)
         try:
-            _run(imp, blocks)
+            while first > 0 and claims.claim(first - 1):
+                first -= 1
+                before = {k: len(getattr(imp.report, k)) for k in ("files", "warnings", "skipped")}
+                batch.start_block(first, starts[first], imp)
+                _run(imp, [blocks[first]])
+                batch.end_block(imp)
+                spans.append((first, {k: (before[k], len(getattr(imp.report, k))) for k in before}))
         finally:
             imp.close()
-        counters = {k: batch.next[k] for k in ("next_id", "next_chain", "next_base", "next_doc")}
-        return {"documents": batch.documents, "sources": batch.sources, "parts": batch.parts,
-                "counters": counters, "order": batch.order, "report": imp.report,
+        return {"first_block": first, "documents": sorted(batch.documents),
+                "sources": [(p, sha) for _, p, sha in sorted(batch.sources)], "parts": batch.parts,
+                "counters": batch.ends, "report": _in_file_order(imp.report, spans),
                 "sent_ids": [sid for sid, where in imp.seen_ids.items() if where == "this import"]}
     except StrataError as e:
         return {"error": str(e)}
@@ -300,3 +381,7 @@ if __name__ == "__main__":
     # pyarrow imports pandas (~0.4 s) on its first array conversion; this process never needs it
     sys.meta_path.insert(0, _NoPandas())
     _child_main()
+    sys.stderr.flush()
+    # every file is closed and the result sent: skip the interpreter's teardown (~0.1 s of
+    # freeing DuckDB and Arrow memory that the main process would wait for)
+    os._exit(0)
