@@ -109,6 +109,8 @@ class Store:
         self.root = Path(root)
         self._catalog_cache: dict[str, LayerInfo] | None = None
         self._memo: dict[tuple, list[tuple]] = {}
+        self._reader: duckdb.DuckDBPyConnection | None = None
+        self.keep_reader = False          # during a batch: one reading connection, not one per question
 
     # -- opening -----------------------------------------------------------------
     @classmethod
@@ -136,20 +138,37 @@ class Store:
         return store
 
     def catalog_connection(self, read_only: bool = True) -> duckdb.DuckDBPyConnection:
+        if not read_only:
+            self._forget_answers()        # DuckDB opens a file one way at a time in a process
         return duckdb.connect(str(self.root / CATALOG_FILE), read_only=read_only)
+
+    def _forget_answers(self) -> None:
+        """Drop the remembered catalog answers and close the reading connection."""
+        self._catalog_cache = None
+        self._memo.clear()
+        if self._reader is not None:
+            self._reader.close()
+            self._reader = None
 
     # -- reading the catalog -----------------------------------------------------------
     def _rows(self, sql: str, params: list | None = None) -> list[tuple]:
         """Catalog rows, remembered until this Store commits a batch.
 
-        Opening the catalog costs ~15 ms, and an import asks it many small questions;
-        the catalog changes only through :meth:`batch`, which forgets the answers.
+        Opening the catalog costs ~15 ms, and an import asks it many small questions: during
+        a batch one read-only connection answers them all (outside one, none stays open, so
+        another process may write). The catalog changes only through :meth:`batch`, which
+        forgets the answers and closes that connection.
         """
         key = (sql, tuple(params or ()))
         rows = self._memo.get(key)
         if rows is None:
-            with self.catalog_connection() as con:
-                rows = con.execute(sql, params or []).fetchall()
+            if not self.keep_reader:      # outside imports: no connection left open to block writers
+                with self.catalog_connection() as con:
+                    rows = con.execute(sql, params or []).fetchall()
+            else:
+                if self._reader is None:
+                    self._reader = self.catalog_connection()
+                rows = self._reader.execute(sql, params or []).fetchall()
             self._memo[key] = rows
         return rows
 
@@ -244,6 +263,7 @@ class Store:
     @contextmanager
     def batch(self, importer: str, options: dict | None = None) -> Iterator["Batch"]:
         """Stage writes; commit them all on success, none on any exception."""
+        self.keep_reader = True
         batch = Batch(self, importer, options or {})
         try:
             yield batch
@@ -252,8 +272,8 @@ class Store:
             batch._abort()
             raise
         finally:
-            self._catalog_cache = None
-            self._memo.clear()
+            self.keep_reader = False
+            self._forget_answers()
 
 
 class Batch:

@@ -220,7 +220,7 @@ def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_pat
     con = two.store.catalog_connection()
     try:
         token_parts = [str(two.path / p) for (p,) in con.execute(
-            "SELECT path FROM parts WHERE layer = 'token' ORDER BY rowid").fetchall()]
+            "SELECT path FROM parts WHERE layer = 'token' ORDER BY path").fetchall()]
     finally:
         con.close()
     assert any(Path(p).name.split("-")[-1].startswith("q") for p in token_parts)
@@ -229,6 +229,6 @@ def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_pat
                         "filename = true) GROUP BY filename ORDER BY min(id)").fetchall()
     order = duckdb.sql(f"SELECT filename FROM read_parquet({token_parts!r}, filename = true) "
                        "GROUP BY filename ORDER BY min(id)").fetchall()
-    assert [f for (f,) in order] == token_parts                   # catalog order = id order
+    assert [f for (f,) in order] == token_parts                   # the views' order of parts = id order
     for (lo, hi, s0, e0), (lo2, _, s1, _) in zip(firsts, firsts[1:]):
         assert hi < lo2 and e0 <= s1

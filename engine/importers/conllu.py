@@ -84,6 +84,51 @@ class _Problems:
             self.items.append((int(lines[r]), int(sents[r]), message(r) if callable(message) else message))
 
 
+class _Comments:
+    """The comment lines of a block in line order: line numbers, sentence and document
+    counters, the verbatim line, key (as codes) and value, and whether the line describes
+    the document. Lookups are numpy over the key codes: these few questions cost ~15 ms
+    per block as DuckDB queries over a registered Arrow table."""
+
+    def __init__(self, n: np.ndarray, s: np.ndarray, d: np.ndarray, line: pa.Array, key: pa.Array,
+                 value: pa.Array, doc_level: np.ndarray) -> None:
+        self.n, self.s, self.d, self.line, self.value, self.doc_level = n, s, d, line, value, doc_level
+        encoded = key.dictionary_encode()
+        self.keys: list[str] = encoded.dictionary.to_pylist()
+        self.code = _np(encoded.indices).astype(np.int64)
+        self._code_of = {k: i for i, k in enumerate(self.keys)}
+
+    def __len__(self) -> int:
+        return len(self.n)
+
+    def rows(self, key: str) -> np.ndarray:
+        """Rows with this key, in line order."""
+        c = self._code_of.get(key)
+        return np.flatnonzero(self.code == c) if c is not None else np.zeros(0, np.int64)
+
+    def filter(self, keep: np.ndarray) -> "_Comments":
+        out = object.__new__(_Comments)
+        km = pa.array(keep)
+        out.n, out.s, out.d, out.doc_level, out.code = self.n[keep], self.s[keep], self.d[keep], \
+            self.doc_level[keep], self.code[keep]
+        out.line, out.value = self.line.filter(km), self.value.filter(km)
+        out.keys, out._code_of = self.keys, self._code_of
+        return out
+
+
+def _last_per_group(rows: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(group, row)`` of the last of ``rows`` (ascending) in each group (nondecreasing along rows)."""
+    g = groups[rows]
+    keep = np.r_[g[1:] != g[:-1], True] if len(rows) else np.zeros(0, bool)
+    return g[keep], rows[keep]
+
+
+def _first_per_group(rows: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    g = groups[rows]
+    keep = np.r_[True, g[1:] != g[:-1]] if len(rows) else np.zeros(0, bool)
+    return g[keep], rows[keep]
+
+
 class ConlluImporter:
     """Imports CoNLL-U files into one batch; ids, ordinals and bases continue across files."""
 
@@ -276,9 +321,9 @@ class ConlluImporter:
         self.head_digit = head_digit
 
     def _comments(self, lines: pa.Array, n: np.ndarray, s: np.ndarray, d: np.ndarray, problems: _Problems) -> None:
-        """Comment lines as a table ``com`` (an Arrow table seen by DuckDB) with key, value and
-        whether they describe the document (pyarrow and numpy: DuckDB window functions over
-        them took ~1 s per million tokens)."""
+        """Comment lines as :class:`_Comments` with key, value and whether they describe the
+        document (pyarrow and numpy: DuckDB window functions over them took ~1 s per million
+        tokens)."""
         # ``# key = value`` (or ``# key=value``); a comment is about the document when it follows
         # a ``newdoc`` line of its sentence's comment group and no ``newpar`` or ``sent_id`` yet
         body = pc.utf8_slice_codeunits(lines, 1)
@@ -294,9 +339,7 @@ class ConlluImporter:
         lens = np.diff(np.r_[first, len(s)])
         seen_doc = _seg_cumsum(is_newdoc.astype(np.int64), first, lens) > 0 if len(s) else is_newdoc
         ended = _seg_cumsum(ends.astype(np.int64), first, lens) > 0 if len(s) else ends
-        self._set_comments(pa.table({"n": n, "s": s, "d": d, "line": lines, "key": key, "value": value,
-                                     "is_newdoc": is_newdoc, "seen_doc": seen_doc, "ended": ended,
-                                     "doc_level": seen_doc & ~ended & ~is_newdoc}))
+        self.com = _Comments(n, s, d, lines, key, value, seen_doc & ~ended & ~is_newdoc)
         # comments after the first token line of their sentence, and comments with no sentence
         tok_s, tok_first_n = self.s[self.seg_starts], self.n[self.seg_starts]
         at = np.searchsorted(tok_s, s)
@@ -306,15 +349,12 @@ class ConlluImporter:
         problems.add(~found, n, s, "comment lines with no token lines after them")
         problems.add(found & (n > first), n, s, "a comment line inside a sentence (comments go before the token lines)")
 
-    def _set_comments(self, table: pa.Table) -> None:
-        self._com = table
-        self.con.register("com", table)
-
     def _check_new_documents(self) -> None:
         """A document that already has these layers needs --prefix: say so before anything else."""
         if not self.docs_with_tokens:
             return
-        names = self.con.execute("SELECT value, n FROM com WHERE key = 'newdoc id' ORDER BY n").fetchall()
+        rows = self.com.rows("newdoc id")
+        names = list(zip(self.com.value.take(pa.array(rows)).to_pylist(), self.com.n[rows].tolist()))
         for name, line in names or [(self.path.stem, self.first_line)]:
             existing = self.known_docs.get(name)
             if existing is not None and existing.doc in self.docs_with_tokens:
@@ -412,10 +452,12 @@ class ConlluImporter:
         self.deps_items = (parent, h, h_digit, h_int, rel)
 
     def _validate_sentence_ids(self, problems: _Problems) -> None:
-        rows = self.con.execute("SELECT s, min(n), last(value ORDER BY n) FROM com WHERE key = 'sent_id' "
-                                "GROUP BY s ORDER BY min(n)").fetchall()
+        com = self.com
+        rows = com.rows("sent_id")
+        sents, first = _first_per_group(rows, com.s)
+        _, last = _last_per_group(rows, com.s)
         self.sent_ids = {}
-        for s, line, sid in rows:
+        for s, line, sid in zip(sents.tolist(), com.n[first].tolist(), com.value.take(pa.array(last)).to_pylist()):
             where = self.seen_ids.get(sid)
             if where is not None:
                 problems.items.append((line, s, f"sentence id {sid!r} is used twice" if where == "this import"
@@ -461,8 +503,7 @@ class ConlluImporter:
                 self.report.skipped.append(f"{self.path}:{line}: {message}")
             keep = ~np.isin(self.s, list(bad))
             self._filter_rows(keep)
-            com = self._com
-            self._set_comments(com.filter(pa.array(~np.isin(_np(com.column("s")), list(bad)))))
+            self.com = self.com.filter(~np.isin(self.com.s, list(bad)))
             self._validate_cycles(_Problems())
         return len(self.n) > 0
 
@@ -491,11 +532,14 @@ class ConlluImporter:
 
     # -- documents and offsets -----------------------------------------------------------
     def _documents(self) -> None:
-        con = self.con
-        names = dict(con.execute("SELECT d, last(value ORDER BY n) FROM com WHERE key = 'newdoc id' GROUP BY d"
-                                 ).fetchall())
+        com = self.com
+        docs, last = _last_per_group(com.rows("newdoc id"), com.d)
+        names = dict(zip(docs.tolist(), com.value.take(pa.array(last)).to_pylist()))
         attrs: dict[int, dict[str, str]] = {}
-        for d, key, value in con.execute("SELECT d, key, value FROM com WHERE doc_level ORDER BY n").fetchall():
+        rows = np.flatnonzero(com.doc_level)
+        for d, code, value in zip(com.d[rows].tolist(), com.code[rows].tolist(),
+                                  com.value.take(pa.array(rows)).to_pylist()):
+            key = com.keys[code]
             attrs.setdefault(d, {})[key[len("meta::"):] if key.startswith("meta::") else key] = value
         self.doc_list = []
         doc_starts = np.flatnonzero(np.r_[True, self.d[1:] != self.d[:-1]])
@@ -802,12 +846,17 @@ class ConlluImporter:
         # surface words
         ur = pa.array(U["rows"])
         is_mwt = U["is_mwt"]
-        mwt_fields = pc.binary_join_element_wise(*[self._col(k, U["rows"]) for k in COLUMNS[2:9]], "\t")
+        # the raw LEMMA..DEPS of multiword lines, joined by tabs, on those rows only
+        mwt_rows = U["rows"][is_mwt]
+        at = np.full(len(is_mwt), -1, np.int64)
+        at[is_mwt] = np.arange(len(mwt_rows))
+        mwt_fields = pc.binary_join_element_wise(*[self._col(k, mwt_rows) for k in COLUMNS[2:9]], "\t").take(
+            pa.array(at, mask=~is_mwt))
         null_str = pa.scalar(None, pa.string())
         word = {"id": self.id_word + np.arange(len(U["rows"])), "doc": U["doc"], "start": U["start"], "end": U["end"],
                 "sent": U["sent"], "tok_first": U["tok_first"], "tok_last": U["tok_last"], "word_first": U["ord"],
                 "word_last": U["ord"], "ord": U["ord"], "cid": c["cid"].take(ur), "form": c["form"].take(ur),
-                "mwt": pa.array(is_mwt), "mwt_fields": pc.if_else(pa.array(is_mwt), mwt_fields, null_str),
+                "mwt": pa.array(is_mwt), "mwt_fields": mwt_fields,
                 "misc": pc.if_else(pa.array(is_mwt), nul(c["misc"].take(ur)), null_str)}
         self.report.add("words", self._stage(N["word"], pa.table(word)))
         self.report.add("multiword tokens", int(is_mwt.sum()))
@@ -824,34 +873,54 @@ class ConlluImporter:
         self._write_mentions(tok)
 
     def _write_sentences(self) -> None:
-        con, S = self.con, self.S
-        keys = [k for (k,) in con.execute("""
-            SELECT DISTINCT key FROM com WHERE NOT doc_level AND NOT starts_with(key, 'newdoc')
-              AND key NOT IN ('sent_id', 'text', '') ORDER BY key""").fetchall()]
-        attr_cols = "".join(
-            f", last(value ORDER BY n) FILTER (WHERE key = {_q(k)} AND NOT doc_level) "
-            f"AS {_ident(k if k not in _RESERVED else 'comment.' + k)}" for k in keys)
-        con.register("sent_arrow", pa.table({k: S[k] for k in ("id", "doc", "start", "end", "tok_first", "tok_last",
-                                                                "word_first", "word_last", "s")}))
-        table = con.sql(f"""
-            SELECT o.* EXCLUDE (s), o.id AS sent, a.* EXCLUDE (s, comments, text_line),
-                   coalesce(a.comments, '') AS comments, a.text_line
-            FROM sent_arrow o LEFT JOIN (
-                SELECT s, last(value ORDER BY n) FILTER (WHERE key = 'sent_id') AS sent_id,
-                       last(value ORDER BY n) FILTER (WHERE key = 'text') AS text,
-                       max(n) FILTER (WHERE key = 'text') AS text_line,
-                       string_agg(line, chr(10) ORDER BY n) AS comments{attr_cols}
-                FROM com GROUP BY s) a USING (s)
-            ORDER BY o.id""").to_arrow_table()
-        con.unregister("sent_arrow")
-        text_lines = table.column("text_line")
-        table = table.drop_columns(["text_line"])
+        """Sentence rows: anchors, ``sent_id``, ``text``, every other comment key (the last
+        value of the sentence's comments; document-level ones excluded) and the comment lines
+        verbatim. numpy over the comment rows, which come in line order, sentence by sentence."""
+        S, com = self.S, self.com
+        n_sent = len(S["id"])
+        pos = np.searchsorted(S["s"], com.s)
+        at = np.minimum(pos, max(n_sent - 1, 0))
+        ours = (pos < n_sent) & (S["s"][at] == com.s) if n_sent else np.zeros(len(com), bool)
+
+        def last_value(rows: np.ndarray) -> tuple[pa.Array, np.ndarray]:
+            """The value of the last of ``rows`` in each sentence (null where none), and that row."""
+            rows = rows[ours[rows]]
+            sents, last = _last_per_group(rows, pos)
+            index = np.full(n_sent, -1, np.int64)
+            index[sents] = last
+            return com.value.take(pa.array(index, mask=index < 0)), index
+
+        table = {k: S[k] for k in ("id", "doc", "start", "end", "tok_first", "tok_last", "word_first", "word_last")}
+        table["sent"] = S["id"]
+        table["sent_id"], _ = last_value(com.rows("sent_id"))
+        table["text"], text_rows = last_value(com.rows("text"))
+        present = np.unique(com.code[~com.doc_level]).tolist()
+        keys = sorted(k for k in (com.keys[c] for c in present)
+                      if not k.startswith("newdoc") and k not in ("sent_id", "text", ""))
+        for k in keys:
+            rows = com.rows(k)
+            table[k if k not in _RESERVED else "comment." + k], _ = last_value(rows[~com.doc_level[rows]])
+        # every comment line of a sentence, joined by newlines: one joined array, sliced per sentence
+        rows = np.flatnonzero(ours)
+        lines = com.line.take(pa.array(rows))
+        g = pos[rows]
+        last = np.r_[g[1:] != g[:-1], True] if len(rows) else np.zeros(0, bool)
+        if len(rows):
+            joined = pc.binary_join_element_wise(lines, pa.array(np.where(last, "", "\n")), "")
+            offsets = np.frombuffer(joined.buffers()[1], dtype=np.int32)[joined.offset:joined.offset + len(joined) + 1]
+            first_row = np.searchsorted(g, np.arange(n_sent + 1))
+            table["comments"] = pa.StringArray.from_buffers(
+                n_sent, pa.py_buffer(offsets[first_row].astype(np.int32)), joined.buffers()[2])
+        else:
+            table["comments"] = pa.array([""] * n_sent, pa.string())
+        table = pa.table(table)
+        text_lines = np.where(text_rows >= 0, com.n[np.maximum(text_rows, 0)] if len(com) else 0, -1)
         self.report.add("sentences", self._stage(self.names["sentence"], table))
         # the "# text" comment must equal the rebuilt sentence
         differs = pc.fill_null(pc.and_kleene(pc.is_valid(table.column("text")),
                                              pc.not_equal(table.column("text"), S["rebuilt"])), False)
         for k in np.flatnonzero(_np(differs)):
-            self.report.warnings.append(f"{self.path}:{text_lines[int(k)].as_py()}: the '# text' of sentence "
+            self.report.warnings.append(f"{self.path}:{text_lines[int(k)]}: the '# text' of sentence "
                                         f"{self.sent_ids.get(int(S['s'][k]))} differs from its tokens joined by "
                                         "SpaceAfter")
 
@@ -923,8 +992,8 @@ class ConlluImporter:
 
     def _entity_fields(self, M: dict) -> dict[str, pa.Array]:
         """The hyphen-separated fields named by each document's ``global.Entity`` comment."""
-        specs = dict(self.con.execute("""
-            SELECT d, last(value ORDER BY n) FROM com WHERE key = 'global.Entity' GROUP BY d""").fetchall())
+        docs, last = _last_per_group(self.com.rows("global.Entity"), self.com.d)
+        specs = dict(zip(docs.tolist(), self.com.value.take(pa.array(last)).to_pylist()))
         n = len(M["d"])
         names = sorted(set(specs.values()) | {DEFAULT_ENTITY_FIELDS})
         code_of = {spec: k for k, spec in enumerate(names)}
@@ -933,33 +1002,32 @@ class ConlluImporter:
         at = np.minimum(np.searchsorted(keys, M["d"]), max(len(keys) - 1, 0))
         found = (keys[at] == M["d"]) if len(keys) else np.zeros(n, bool)
         doc_code = np.where(found, codes[at] if len(keys) else 0, code_of[DEFAULT_ENTITY_FIELDS])
-        pieces: dict[str, list[tuple[np.ndarray, pa.Array]]] = {}
+        # the fields of all mentions as one flat array; per output column, one index into it
+        flats: list[pa.Array] = []
+        index: dict[str, np.ndarray] = {}
+        shift = 0
         for spec in sorted({names[c] for c in np.unique(doc_code).tolist()}):
             fields = spec.split("-")
             rows = np.flatnonzero(doc_code == code_of[spec])
             parts = pc.split_pattern(M["spec"].take(pa.array(rows)), "-", max_splits=len(fields) - 1)
-            length = _np(pc.list_value_length(parts))
+            offsets = _np(parts.offsets).astype(np.int64)
+            length = np.diff(offsets)
+            flat = parts.values.slice(int(offsets[0]), int(offsets[-1] - offsets[0]))
             for k, name in enumerate(fields[1:], start=1):
                 col = "type" if name == "etype" else name
                 if col in _RESERVED | {"entity", "chain", "chain_pos", "first_mention"}:
                     col = "entity." + col
+                idx = index.setdefault(col, np.full(n, -1, np.int64))
                 has = length > k
-                if has.any():
-                    pieces.setdefault(col, []).append(
-                        (rows[has], pc.list_element(parts.filter(pa.array(has)), k).cast(pa.string())))
-                else:
-                    pieces.setdefault(col, [])
+                idx[rows[has]] = shift + offsets[:-1][has] - offsets[0] + k
+            flats.append(flat)
+            shift += len(flat)
+        values = pa.concat_arrays(flats) if len(flats) > 1 else flats[0]
+        empty = _np(pc.equal(values, ""))
         out: dict[str, pa.Array] = {}
-        null = pa.scalar(None, pa.string())
-        for col, chunks in pieces.items():
-            values = pa.concat_arrays([v for _, v in chunks] + [pa.array([None], pa.string())])
-            index = np.full(n, len(values) - 1, np.int64)
-            at = 0
-            for rows, v in chunks:
-                index[rows] = at + np.arange(len(v))
-                at += len(v)
-            column = values.take(pa.array(index))
-            out[col] = pc.if_else(pc.equal(column, ""), null, column)
+        for col, idx in index.items():
+            missing = (idx < 0) | empty[np.maximum(idx, 0)]
+            out[col] = values.take(pa.array(idx, mask=missing))
         return out
 
     def flush(self) -> None:

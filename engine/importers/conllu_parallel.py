@@ -350,7 +350,9 @@ def _child_import(root: str, stage: str, blocks: list[Block], options: ImportOpt
                   start: dict[str, int]) -> dict:
     """Claim and import blocks from the last one down, until the main process has the next."""
     try:
-        batch = _ChildBatch(Store(Path(root)), Path(stage))
+        store = Store(Path(root))
+        store.keep_reader = True                 # read-only answers for the whole import
+        batch = _ChildBatch(store, Path(stage))
         claims = Claims(Path(stage) / "claims")
         starts = block_starts(blocks, start)
         imp = ConlluImporter(batch, options, part_tag="q")
