@@ -33,6 +33,7 @@ import duckdb
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from engine import stats as part_statistics
 from engine.errors import StrataError
 from querylang.catalog import AttrInfo, LayerInfo
 
@@ -74,6 +75,13 @@ STRUCTURAL = set(ANCHOR_COLUMNS) | {"ord", "parent", "pre", "post", "src", "dst"
 DOC_GAP = 1
 _LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
 
+#: Statistics of each part (engine/stats.py), merged per layer into layer_attrs; added to
+#: catalogs made before them at their next commit.
+_STATS_DDL = """
+CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT);
+CREATE TABLE IF NOT EXISTS part_attrs (path VARCHAR, attr VARCHAR, type VARCHAR, n_null BIGINT, registers BLOB);
+CREATE TABLE IF NOT EXISTS part_keys (path VARCHAR, col VARCHAR, key VARCHAR, n BIGINT, registers BLOB);
+"""
 _CATALOG_DDL = """
 CREATE TABLE IF NOT EXISTS meta (key VARCHAR PRIMARY KEY, value VARCHAR);
 CREATE TABLE IF NOT EXISTS documents (doc INTEGER PRIMARY KEY, name VARCHAR UNIQUE,
@@ -85,7 +93,7 @@ CREATE TABLE IF NOT EXISTS layer_attrs (layer VARCHAR, attr VARCHAR, type VARCHA
 CREATE TABLE IF NOT EXISTS parts (layer VARCHAR, path VARCHAR, rows BIGINT, import_id VARCHAR);
 CREATE TABLE IF NOT EXISTS imports (import_id VARCHAR, source VARCHAR, sha256 VARCHAR,
     importer VARCHAR, options VARCHAR, imported_at VARCHAR);
-"""
+""" + _STATS_DDL
 
 _ARROW_TYPE_NAMES = {
     pa.string(): "str", pa.large_string(): "str", pa.int64(): "int", pa.int32(): "int",
@@ -300,6 +308,7 @@ class Batch:
         self._finalisers: list = []
         self._replaced: set[str] = set()
         self._durations: dict[int, float] = {}
+        self._part_stats: dict[str, part_statistics.PartStats] = {}
 
     # ids and anchors
     def alloc_ids(self, n: int) -> int:
@@ -456,6 +465,16 @@ class Batch:
             raise ValueError(f"{path} is not a staged part of {layer}")
         self._rows[str(path)] = rows
 
+    def add_part_stats(self, stats: dict[str, "part_statistics.PartStats"]) -> None:
+        """Statistics of staged parts, computed by whoever wrote them (see engine/stats.py);
+        parts without them get theirs at commit."""
+        self._part_stats.update({str(p): v for p, v in stats.items()})
+
+    def compute_part_stats(self, con: duckdb.DuckDBPyConnection, layer: str, paths: list[Path]) -> dict:
+        """Statistics of some staged parts of ``layer`` (with its attribute and key columns)."""
+        props = self._layer_props.get(layer, (None, {}))[1]
+        return part_statistics.part_stats(con, [str(p) for p in paths], STRUCTURAL, props.get("key_value", ()))
+
     def staged_paths(self, layer: str) -> list[Path]:
         """Staged part files of a layer (closes its open writer)."""
         entry = self._writers.pop(layer, None)
@@ -491,6 +510,8 @@ class Batch:
             dest = dest_dir / f"{self.import_id}-{staged.name.split('--')[1]}"
             parts.append((layer, str(dest.relative_to(self.store.root)), self._rows.get(str(staged), 0),
                           self.import_id))
+            if str(staged) in self._part_stats:
+                self._part_stats[parts[-1][1]] = self._part_stats.pop(str(staged))
         try:
             for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
                 os.replace(staged, self.store.root / rel)
@@ -510,10 +531,14 @@ class Batch:
         with self.store.catalog_connection(read_only=False) as con:
             con.execute("BEGIN TRANSACTION")
             try:
+                con.execute(_STATS_DDL)
                 old: list[str] = []
                 for layer in sorted(self._replaced):
-                    old += [p for (p,) in con.execute("SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
+                    gone = [p for (p,) in con.execute("SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
+                    old += gone
                     con.execute("DELETE FROM parts WHERE layer = ?", [layer])
+                    for table in ("part_stats", "part_attrs", "part_keys"):
+                        con.execute(f"DELETE FROM {table} WHERE path IN (SELECT unnest(?::VARCHAR[]))", [gone])
                 if self._docs:   # as one Arrow table: row-by-row inserts cost seconds for thousands of documents
                     docs = pa.table({"doc": pa.array([d.doc for d in self._docs], pa.int32()),
                                      "name": [d.name for d in self._docs], "base": [d.base for d in self._docs],
@@ -529,18 +554,19 @@ class Batch:
                     con.register("new_doc_attrs", attrs)
                     con.execute("INSERT INTO doc_attrs SELECT * FROM new_doc_attrs")
                     con.unregister("new_doc_attrs")
+                # one statement per table (each costs a few ms here, whatever its rows)
                 with_parts = {p[0] for p in parts}
-                for name, (kind, props) in self._layer_props.items():
-                    # a layer declared but left empty (no empty nodes in the file, say) is not listed
-                    if name in with_parts or con.execute("SELECT 1 FROM layers WHERE name = ?", [name]).fetchall():
-                        con.execute("INSERT OR REPLACE INTO layers VALUES (?, ?, ?)", [name, kind, json.dumps(props)])
-                if parts:
-                    con.executemany("INSERT INTO parts VALUES (?, ?, ?, ?)", parts)
-                for src, sha in self._sources:
-                    con.execute("INSERT INTO imports VALUES (?, ?, ?, ?, ?, ?)",
-                                [self.import_id, src, sha, self.importer, json.dumps(self.options), _now()])
-                for k, v in self._meta.items():
-                    con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", [k, str(v)])
+                listed = {n for (n,) in con.execute("SELECT name FROM layers").fetchall()}
+                # a layer declared but left empty (no empty nodes in the file, say) is not listed
+                _insert(con, "INSERT OR REPLACE INTO layers", ("name", "kind", "props"),
+                        [(name, kind, json.dumps(props)) for name, (kind, props) in self._layer_props.items()
+                         if name in with_parts or name in listed])
+                _insert(con, "INSERT INTO parts", ("layer", "path", "rows", "import_id"), parts)
+                now, options = _now(), json.dumps(self.options)
+                _insert(con, "INSERT INTO imports", ("import_id", "source", "sha256", "importer", "options", "at"),
+                        [(self.import_id, src, sha, self.importer, options, now) for src, sha in self._sources])
+                _insert(con, "INSERT OR REPLACE INTO meta", ("key", "value"),
+                        [(k, str(v)) for k, v in self._meta.items()])
                 self._refresh_stats(con, {p[0] for p in parts})
                 con.execute("COMMIT")
             except BaseException:
@@ -549,27 +575,65 @@ class Batch:
         return old
 
     def _refresh_stats(self, con: duckdb.DuckDBPyConnection, layers: set[str]) -> None:
-        """Per-attribute distinct and null counts: the compiler's selectivity estimates."""
-        for layer in sorted(layers):
-            paths = [str(self.store.root / p) for (p,) in con.execute(
-                "SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
-            files = "[" + ", ".join(_sql_str(p) for p in paths) + "]"
-            rel = f"read_parquet({files}, union_by_name = true)"
-            schema = con.execute(f"DESCRIBE SELECT * FROM {rel}").fetchall()
-            cols = [(c, t) for c, t, *_ in schema if c not in STRUCTURAL]
-            con.execute("DELETE FROM layer_attrs WHERE layer = ?", [layer])
-            if not cols:
-                continue
-            exprs = ", ".join(f"approx_count_distinct({_ident(c)}), count(*) - count({_ident(c)})" for c, _ in cols)
-            values = con.execute(f"SELECT {exprs}, count(*) FROM {rel}").fetchall()[0]
-            rows = [(layer, c, _duck_type_name(t), int(values[2 * i]), int(values[2 * i + 1]))
-                    for i, (c, t) in enumerate(cols)]
-            total = int(values[-1])
-            rows += self._key_value_stats(con, layer, rel, {c for c, *_ in schema}, total)
-            con.executemany("INSERT INTO layer_attrs VALUES (?, ?, ?, ?, ?)", rows)
+        """Per-attribute distinct and null counts (the compiler's selectivity estimates) of the
+        layers this batch touched, merged from the statistics of their parts: stored ones,
+        those the importer handed in, and, for parts with none, computed now (engine/stats.py).
+        A few statements for all layers together: each costs a few ms in the catalog."""
+        if not layers:
+            return
+        names = sorted(layers)
+        paths: dict[str, list[str]] = {name: [] for name in names}
+        for layer, path in con.execute("SELECT layer, path FROM parts WHERE layer IN (SELECT unnest(?::VARCHAR[])) "
+                                       "ORDER BY path", [names]).fetchall():
+            paths[layer].append(path)
+        every = [p for name in names for p in paths[name]]
+        known = {p for (p,) in con.execute(
+            "SELECT path FROM part_stats WHERE path IN (SELECT unnest(?::VARCHAR[]))", [every]).fetchall()}
+        new = {p: self._part_stats[p] for p in every if p not in known and p in self._part_stats}
+        for layer in names:
+            missing = [p for p in paths[layer] if p not in known and p not in new]
+            if missing:
+                computed = self.compute_part_stats(con, layer, [self.store.root / p for p in missing])
+                new.update({p: computed[str(self.store.root / p)] for p in missing})
+        self._store_part_stats(con, new)
+        stored = self._load_part_stats(con, every)
+        rows = []
+        for layer in names:
+            total, attrs, keys = part_statistics.merge([stored[p] for p in paths[layer] if p in stored])
+            rows += [(layer, a, _duck_type_name(t), nd, nn) for a, (t, nd, nn) in attrs.items()]
+            rows += self._key_value_stats(con, layer, set(attrs), keys, total)
+        con.execute("DELETE FROM layer_attrs WHERE layer IN (SELECT unnest(?::VARCHAR[]))", [names])
+        _insert(con, "INSERT INTO layer_attrs", ("layer", "attr", "type", "n_distinct", "n_null"), rows)
 
-    def _key_value_stats(self, con: duckdb.DuckDBPyConnection, layer: str, rel: str, physical: set[str],
-                         total: int) -> list[tuple]:
+    @staticmethod
+    def _store_part_stats(con: duckdb.DuckDBPyConnection, stats: dict[str, "part_statistics.PartStats"]) -> None:
+        """Insert as Arrow tables: row-by-row inserts took ~0.1 s for the parts of 1M tokens."""
+        if not stats:
+            return
+        attrs = [(p, a, v.type, v.n_null, v.registers) for p, s in stats.items() for a, v in s.attrs.items()]
+        keys = [(p, c, k, v.rows, v.registers) for p, s in stats.items() for c, ks in s.keys.items()
+                for k, v in ks.items()]
+        tables = {"part_stats": (("path", "rows"), [(p, s.rows) for p, s in stats.items()]),
+                  "part_attrs": (("path", "attr", "type", "n_null", "registers"), attrs),
+                  "part_keys": (("path", "col", "key", "n", "registers"), keys)}
+        for name, (columns, rows) in tables.items():
+            _insert(con, f"INSERT INTO {name}", columns, rows)
+
+    @staticmethod
+    def _load_part_stats(con: duckdb.DuckDBPyConnection, paths: list[str]) -> dict[str, "part_statistics.PartStats"]:
+        ps = part_statistics
+        out = {p: ps.PartStats(int(n)) for p, n in con.execute(
+            "SELECT path, rows FROM part_stats WHERE path IN (SELECT unnest(?::VARCHAR[]))", [paths]).fetchall()}
+        for p, a, t, nn, reg in con.execute("SELECT path, attr, type, n_null, registers FROM part_attrs "
+                                            "WHERE path IN (SELECT unnest(?::VARCHAR[]))", [paths]).fetchall():
+            out[p].attrs[a] = ps.AttrStats(t, int(nn), bytes(reg))
+        for p, c, k, n, reg in con.execute("SELECT path, col, key, n, registers FROM part_keys "
+                                           "WHERE path IN (SELECT unnest(?::VARCHAR[]))", [paths]).fetchall():
+            out[p].keys.setdefault(c, {})[k] = ps.KeyStats(int(n), bytes(reg))
+        return out
+
+    def _key_value_stats(self, con: duckdb.DuckDBPyConnection, layer: str, physical: set[str],
+                         keys: dict[str, dict[str, tuple[int, int]]], total: int) -> list[tuple]:
         """Keys of the ``Key=Value|...`` columns (FEATS, MISC) as derived attributes with statistics.
 
         Why derived: one Parquet column per key cost the CoNLL-U import ~2 s of CPU per million
@@ -589,19 +653,9 @@ class Batch:
         derived: dict[str, list[str]] = {}
         rows = []
         for column in columns:
-            c = _ident(column)
-            # split the distinct strings (with their counts), not every row: 0.34 -> 0.02 s for
-            # the FEATS of 1M tokens (a few thousand distinct bundles)
-            stats = con.execute(f"""
-                SELECT k, count(DISTINCT v), sum(n) FROM (
-                    SELECT split_part(kv, '=', 1) AS k, nullif(substr(kv, strpos(kv, '=') + 1), '') AS v, n
-                    FROM (SELECT unnest(string_split(b, '|')) AS kv, n
-                          FROM (SELECT {c} AS b, count(*) AS n FROM {rel} WHERE {c} IS NOT NULL GROUP BY {c}))
-                    WHERE contains(kv, '='))
-                WHERE k <> '' GROUP BY k ORDER BY k""").fetchall()
-            stats = [(k, nd, n) for k, nd, n in stats if f"{column}.{k}" not in physical]
+            stats = [(k, nd, n) for k, (nd, n) in keys.get(column, {}).items() if f"{column}.{k}" not in physical]
             derived[column] = [k for k, _, _ in stats]
-            rows += [(layer, f"{column}.{k}", "str", int(nd), max(0, total - int(n))) for k, nd, n in stats]
+            rows += [(layer, f"{column}.{k}", "str", nd, max(0, total - n)) for k, nd, n in stats]
         props = {**props, "derived_keys": derived}
         con.execute("UPDATE layers SET props = ? WHERE name = ?", [json.dumps(props), layer])
         return rows
@@ -618,6 +672,17 @@ class Batch:
 
 
 # -- helpers ----------------------------------------------------------------------------
+def _insert(con: duckdb.DuckDBPyConnection, statement: str, columns: tuple[str, ...], rows: list[tuple]) -> None:
+    """``statement`` (an INSERT up to its table) with ``rows`` as one Arrow table."""
+    if not rows:
+        return
+    con.register("new_rows", pa.table({c: list(v) for c, v in zip(columns, zip(*rows))}))
+    try:
+        con.execute(f"{statement} SELECT * FROM new_rows")
+    finally:
+        con.unregister("new_rows")
+
+
 def _now() -> str:
     return datetime.now(timezone.utc).isoformat(timespec="seconds")
 

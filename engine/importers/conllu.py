@@ -33,7 +33,8 @@ from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.treeorder import TreeError, tree_order
 from engine.progress import byte_progress
-from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, ROW_GROUP_SIZE, Batch, part_write_options
+from engine.stats import part_stats
+from engine.store import ANCHOR_COLUMNS, EDGE_COLUMNS, ROW_GROUP_SIZE, STRUCTURAL, Batch, part_write_options
 
 FORMAT = "conllu"
 DEFAULT_ENTITY_FIELDS = "eid-etype-head-other"
@@ -161,6 +162,7 @@ class ConlluImporter:
         self.descending = False
         self._writer = ThreadPoolExecutor(max_workers=1)
         self._writes: list = []
+        self._staged: list[tuple[str, Path]] = []      # parts whose statistics are still to compute
         self._buffers: dict[str, list[tuple[int, pa.Table]]] = {}
         self._declare()
 
@@ -185,6 +187,7 @@ class ConlluImporter:
         common = {"token_layer": n["token"], "word_layer": n["word"], "format": FORMAT}
         # FEATS and MISC stay one column each; the store derives feats.KEY and misc.KEY from them
         kv = {"key_value": ["feats", "misc"]}
+        self.key_value = {n["token"]: kv["key_value"], n["empty"]: kv["key_value"], n["word"]: ["misc"]}
         self.batch.declare_layer(n["token"], "token", {**common, **kv, "tree": True,
                                                        "edge_sets": [n["dep"], n["enhanced"]]})
         self.batch.declare_layer(n["word"], "token", {**common, "key_value": ["misc"]})
@@ -819,6 +822,7 @@ class ConlluImporter:
         self._writes.append(self._writer.submit(pq.write_table, table, path, row_group_size=ROW_GROUP_SIZE,
                                                 **part_write_options(table.schema)))
         self.batch.add_staged(layer, path, table.num_rows)
+        self._staged.append((layer, path))
 
     def _write(self) -> None:
         N, W, U, E, T = self.names, self.W, self.U, self.E, self.T
@@ -1035,12 +1039,24 @@ class ConlluImporter:
         for layer in list(self._buffers):
             self._flush(layer)
 
+    def finish_parts(self) -> None:
+        """Wait for the parts written so far (re-raising a write error) and hand their
+        statistics to the batch (engine/stats.py), so that the commit only merges them."""
+        for f in self._writes:
+            f.result()
+        self._writes = []
+        by_layer: dict[str, list[str]] = {}
+        for layer, path in self._staged:
+            by_layer.setdefault(layer, []).append(str(path))
+        self._staged = []
+        for layer, paths in by_layer.items():
+            self.batch.add_part_stats(part_stats(self.con, paths, STRUCTURAL, self.key_value.get(layer, ())))
+
     def close(self) -> None:
-        """Write what is buffered and wait for the staged parts (re-raising a write error)."""
+        """Write what is buffered, wait for the staged parts and compute their statistics."""
         try:
             self.flush()
-            for f in self._writes:
-                f.result()
+            self.finish_parts()
         finally:
             self._writer.shutdown(wait=True)
             self.con.close()

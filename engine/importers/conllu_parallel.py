@@ -162,7 +162,10 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
                 child.wait()
                 imp.close()
                 return imp.report
-            imp.flush()                        # the last parts are written while the child finishes
+            # the last parts are written, and the statistics of this process's parts computed,
+            # while the child finishes
+            imp.flush()
+            imp.finish_parts()
             try:
                 result = pickle.load(child.stdout)
             except (EOFError, pickle.UnpicklingError):   # the child died without a word (killed, out of memory)
@@ -241,6 +244,7 @@ def _adopt(result: dict, imp: ConlluImporter, batch: Batch) -> None:
         batch.add_source(path, sha)
     for layer, path, rows in result["parts"]:
         batch.add_staged(layer, Path(path), rows)
+    batch.add_part_stats(result["part_stats"])
     batch.advance_counters(result["counters"])
     imp.order = max(imp.order, result["counters"]["order"])
     imp.report.merge(result["report"])
@@ -268,6 +272,7 @@ class _ChildBatch:
         self.documents: list[tuple] = []
         self.sources: list[tuple[int, str, str]] = []
         self.parts: list[tuple[str, str, int]] = []
+        self.part_stats: dict = {}
         self.ends: dict[str, int] = {}
 
     def start_block(self, block: int, start: dict[str, int], imp: ConlluImporter) -> None:
@@ -309,6 +314,9 @@ class _ChildBatch:
 
     def add_staged(self, layer: str, path: Path, rows: int) -> None:
         self.parts.append((layer, str(path), rows))
+
+    def add_part_stats(self, stats: dict) -> None:
+        self.part_stats.update(stats)
 
     def set_meta(self, key: str, value: int) -> None:
         pass                                   # next_order: the ends of the blocks say it
@@ -371,6 +379,7 @@ def _child_import(root: str, stage: str, blocks: list[Block], options: ImportOpt
             imp.close()
         return {"first_block": first, "documents": sorted(batch.documents),
                 "sources": [(p, sha) for _, p, sha in sorted(batch.sources)], "parts": batch.parts,
+                "part_stats": batch.part_stats,
                 "counters": batch.ends, "report": _in_file_order(imp.report, spans),
                 "sent_ids": [sid for sid, where in imp.seen_ids.items() if where == "this import"]}
     except StrataError as e:
