@@ -57,6 +57,7 @@ class KeyStats:
 @dataclass
 class PartStats:
     rows: int
+    sent_null: int | None = None   # rows without a sentence (``sent`` NULL); None: no such column
     attrs: dict[str, AttrStats] = field(default_factory=dict)
     keys: dict[str, dict[str, KeyStats]] = field(default_factory=dict)   # column -> key -> stats
 
@@ -144,11 +145,13 @@ def part_stats(con: duckdb.DuckDBPyConnection, paths: list[str], skip: set[str] 
     cols = [(c, t) for c, t in schema if c not in skip]
     exprs = "".join(f", approx_count_distinct({_ident(c)}) EXPORT_STATE, count(*) - count({_ident(c)})"
                     for c, _ in cols)
-    for row in con.execute(f"SELECT __part, count(*){exprs} FROM {rel} GROUP BY __part").fetchall():
+    has_sent = any(c == "sent" for c, _ in schema)
+    sent = ", count(*) - count(sent)" if has_sent else ", NULL"
+    for row in con.execute(f"SELECT __part, count(*){sent}{exprs} FROM {rel} GROUP BY __part").fetchall():
         path, rows = row[0], int(row[1])
-        stats = PartStats(rows)
+        stats = PartStats(rows, None if row[2] is None else int(row[2]))
         for i, (c, t) in enumerate(cols):
-            stats.attrs[c] = AttrStats(t, int(row[3 + 2 * i]), _registers(row[2 + 2 * i]))
+            stats.attrs[c] = AttrStats(t, int(row[4 + 2 * i]), _registers(row[3 + 2 * i]))
         out[path] = stats
     for p in paths:                   # a part with no rows has no group
         out.setdefault(p, PartStats(0))
@@ -171,9 +174,16 @@ def part_stats(con: duckdb.DuckDBPyConnection, paths: list[str], skip: set[str] 
     return out
 
 
-def merge(parts: list[PartStats]) -> tuple[int, dict[str, tuple[str, int, int]], dict[str, dict[str, tuple[int, int]]]]:
-    """``(rows, {attr: (type, n_distinct, n_null)}, {column: {key: (n_distinct, rows with it)}})``
-    of a layer made of ``parts``; an attribute a part lacks is null in all its rows."""
+@dataclass
+class LayerStats:
+    rows: int
+    attrs: dict[str, tuple[str, int, int]]            # attr -> (type, n_distinct, n_null)
+    keys: dict[str, dict[str, tuple[int, int]]]       # column -> key -> (n_distinct, rows with it)
+    sent_null: int | None                             # None when a part did not count it
+
+
+def merge(parts: list[PartStats]) -> LayerStats:
+    """The statistics of a layer made of ``parts``; an attribute a part lacks is null in all its rows."""
     total = sum(p.rows for p in parts)
     types: dict[str, str] = {}
     for p in parts:
@@ -191,4 +201,5 @@ def merge(parts: list[PartStats]) -> tuple[int, dict[str, tuple[str, int, int]],
             have = [p.keys[column][k] for p in parts if k in p.keys.get(column, {})]
             keys.setdefault(column, {})[k] = (round(estimate(merge_registers([h.registers for h in have]))),
                                               sum(h.rows for h in have))
-    return total, attrs, keys
+    sent_null = None if any(p.sent_null is None for p in parts) else sum(p.sent_null for p in parts)
+    return LayerStats(total, attrs, keys, sent_null)

@@ -78,7 +78,7 @@ _LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
 #: Statistics of each part (engine/stats.py), merged per layer into layer_attrs; added to
 #: catalogs made before them at their next commit.
 _STATS_DDL = """
-CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT);
+CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT, sent_null BIGINT);
 CREATE TABLE IF NOT EXISTS part_attrs (path VARCHAR, attr VARCHAR, type VARCHAR, n_null BIGINT, registers BLOB);
 CREATE TABLE IF NOT EXISTS part_keys (path VARCHAR, col VARCHAR, key VARCHAR, n BIGINT, registers BLOB);
 """
@@ -205,8 +205,12 @@ class Store:
         """The catalog view of every layer and edge set (cached per Store)."""
         if self._catalog_cache is None:
             attrs: dict[str, dict[str, AttrInfo]] = {}
+            sent_missing: dict[str, int] = {}
             for layer, attr, typ, nd, nn in self._rows(
                     "SELECT layer, attr, type, n_distinct, n_null FROM layer_attrs ORDER BY layer, attr"):
+                if attr in STRUCTURAL:
+                    sent_missing[layer] = nn if attr == "sent" else sent_missing.get(layer)
+                    continue
                 attrs.setdefault(layer, {})[attr] = AttrInfo(attr, typ, nd, nn)
             rows = dict(self._rows("SELECT layer, sum(rows) FROM parts GROUP BY layer"))
             out = {}
@@ -216,7 +220,9 @@ class Store:
                     name=name, kind=kind, attrs=attrs.get(name, {}), rows=int(rows.get(name, 0) or 0),
                     tree=bool(props.get("tree")), time=bool(props.get("time")),
                     readings=bool(props.get("readings")), token_layer=props.get("token_layer"),
-                    word_layer=props.get("word_layer"), edge_sets=tuple(props.get("edge_sets", ())))
+                    word_layer=props.get("word_layer"), edge_sets=tuple(props.get("edge_sets", ())),
+                    sentence_layer=props.get("sentence_layer"), sent_missing=sent_missing.get(name),
+                    separate=bool(props.get("separate")))
             self._catalog_cache = out
         return self._catalog_cache
 
@@ -390,8 +396,17 @@ class Batch:
         existing = self.store._layer_row(name)
         if existing and existing[0] != kind:
             raise StrataError(f"layer {name!r} exists already as a {existing[0]} layer, not {kind}")
-        merged = json.loads(existing[1]) if existing else {}
-        merged.update(props or {})
+        if name in self._layer_props:
+            before, had = self._layer_props[name][1], True
+        else:
+            before, had = (json.loads(existing[1]), True) if existing else ({}, False)
+        merged = {**before, **(props or {})}
+        # what an importer says of the nodes it writes holds for the layer only if it held before:
+        # ``separate`` (no two nodes share or touch a character), ``sentence_layer`` (what ``sent`` names)
+        if had and "separate" in (props or {}):
+            merged["separate"] = bool(before.get("separate")) and bool(props["separate"])
+        if had and "sentence_layer" in (props or {}) and before.get("sentence_layer") != props["sentence_layer"]:
+            merged["sentence_layer"] = None
         self._layer_props[name] = (kind, merged)
 
     def write_nodes(self, layer: str, kind: str, table: pa.Table, props: dict | None = None) -> None:
@@ -599,9 +614,11 @@ class Batch:
         stored = self._load_part_stats(con, every)
         rows = []
         for layer in names:
-            total, attrs, keys = part_statistics.merge([stored[p] for p in paths[layer] if p in stored])
-            rows += [(layer, a, _duck_type_name(t), nd, nn) for a, (t, nd, nn) in attrs.items()]
-            rows += self._key_value_stats(con, layer, set(attrs), keys, total)
+            merged = part_statistics.merge([stored[p] for p in paths[layer] if p in stored])
+            rows += [(layer, a, _duck_type_name(t), nd, nn) for a, (t, nd, nn) in merged.attrs.items()]
+            rows += self._key_value_stats(con, layer, set(merged.attrs), merged.keys, merged.rows)
+            if merged.sent_null is not None:      # a structural column: its null count only (Store.layers)
+                rows.append((layer, "sent", "int", None, merged.sent_null))
         con.execute("DELETE FROM layer_attrs WHERE layer IN (SELECT unnest(?::VARCHAR[]))", [names])
         _insert(con, "INSERT INTO layer_attrs", ("layer", "attr", "type", "n_distinct", "n_null"), rows)
 
@@ -613,7 +630,7 @@ class Batch:
         attrs = [(p, a, v.type, v.n_null, v.registers) for p, s in stats.items() for a, v in s.attrs.items()]
         keys = [(p, c, k, v.rows, v.registers) for p, s in stats.items() for c, ks in s.keys.items()
                 for k, v in ks.items()]
-        tables = {"part_stats": (("path", "rows"), [(p, s.rows) for p, s in stats.items()]),
+        tables = {"part_stats": (("path", "rows", "sent_null"), [(p, s.rows, s.sent_null) for p, s in stats.items()]),
                   "part_attrs": (("path", "attr", "type", "n_null", "registers"), attrs),
                   "part_keys": (("path", "col", "key", "n", "registers"), keys)}
         for name, (columns, rows) in tables.items():
@@ -622,8 +639,9 @@ class Batch:
     @staticmethod
     def _load_part_stats(con: duckdb.DuckDBPyConnection, paths: list[str]) -> dict[str, "part_statistics.PartStats"]:
         ps = part_statistics
-        out = {p: ps.PartStats(int(n)) for p, n in con.execute(
-            "SELECT path, rows FROM part_stats WHERE path IN (SELECT unnest(?::VARCHAR[]))", [paths]).fetchall()}
+        out = {p: ps.PartStats(int(n), None if sn is None else int(sn)) for p, n, sn in con.execute(
+            "SELECT path, rows, sent_null FROM part_stats WHERE path IN (SELECT unnest(?::VARCHAR[]))",
+            [paths]).fetchall()}
         for p, a, t, nn, reg in con.execute("SELECT path, attr, type, n_null, registers FROM part_attrs "
                                             "WHERE path IN (SELECT unnest(?::VARCHAR[]))", [paths]).fetchall():
             out[p].attrs[a] = ps.AttrStats(t, int(nn), bytes(reg))

@@ -34,6 +34,10 @@ class LayerInfo:
     token_layer: str | None = None   # layer whose ordinals tok_first/tok_last count
     word_layer: str | None = None    # layer whose ordinals word_first/word_last count
     edge_sets: tuple[str, ...] = ()  # edge sets whose src/dst are nodes of this layer
+    # ``sent`` holds the id of the node of this layer that the node lies inside (NULL: none known)
+    sentence_layer: str | None = None
+    sent_missing: int | None = None  # rows whose ``sent`` is NULL (None: not counted)
+    separate: bool = False           # no two nodes share or touch a character (sentences)
 
 
 class Catalog(Protocol):

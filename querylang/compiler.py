@@ -43,6 +43,7 @@ from dataclasses import dataclass, field, replace
 from querylang import ast
 from querylang.catalog import LayerInfo
 from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer
+from querylang.keys import sentence_key_branches
 from querylang.planner import Plan
 
 SENTENCE_VIEW = "sentence"
@@ -577,7 +578,8 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     select.append(f"greatest({', '.join(ends)}) AS _he" if len(ends) > 1 else f"{ends[0]} AS _he")
 
     bodies = []
-    for where in or_branches(q.where, set(variables)):
+    keyed = sentence_key_branches(q.where, checked.layers, checked.catalog.layers())
+    for where in or_branches(keyed, set(variables)):
         scope = Scope(dict(main.aliases), dict(main.layers), list(main.own))
         frm, whr = sb.level(q.bindings, where, scope)
         if wheres:

@@ -40,6 +40,9 @@ class LayerSpec:
     edge_sets: tuple[str, ...] = ()
     time: bool | None = None          # None: true when some node has a time span
     types: dict[str, str] = field(default_factory=dict)   # declared attributes (present even if unused)
+    sentence_layer: str | None = None  # what ``sent`` names (LayerInfo.sentence_layer)
+    separate: bool = False             # LayerInfo.separate: the caller keeps it true
+    count_missing: bool = True         # LayerInfo.sent_missing counted (else None: unknown)
 
 
 ARROW_TYPES = {"str": pa.string(), "int": pa.int64(), "float": pa.float64(), "bool": pa.bool_()}
@@ -47,6 +50,7 @@ ARROW_TYPES = {"str": pa.string(), "int": pa.int64(), "float": pa.float64(), "bo
 
 class CorpusBuilder:
     def __init__(self) -> None:
+        self.stale: set[str] = set()   # nodes stored without their sentence (``sent`` NULL though inside one)
         self.docs: list[tuple[str, str, dict[str, str]]] = []
         self.layers: dict[str, LayerSpec] = {}
         self.nodes: list[Node] = []
@@ -145,7 +149,8 @@ class CorpusBuilder:
                 cols["start"].append(s); cols["end"].append(e)
                 cols["t_start"].append(n.time[0] if n.time else None)
                 cols["t_end"].append(n.time[1] if n.time else None)
-                cols["sent"].append(sentence_of(n) if name != "sentence" else ids[n.key])
+                cols["sent"].append(None if n.key in self.stale else sentence_of(n) if name != "sentence"
+                                    else ids[n.key])
                 cols["tok_first"].append(tf); cols["tok_last"].append(tl)
                 cols["word_first"].append(wf); cols["word_last"].append(wl)
                 if spec.kind == "token":
@@ -179,7 +184,9 @@ class CorpusBuilder:
             layer_infos[name] = LayerInfo(
                 name, spec.kind, attrs, len(rows), tree=spec.tree,
                 time=spec.time if spec.time is not None else any(n.time for n in rows), readings=spec.readings,
-                token_layer=spec.token_layer, word_layer=spec.word_layer, edge_sets=spec.edge_sets)
+                token_layer=spec.token_layer, word_layer=spec.word_layer, edge_sets=spec.edge_sets,
+                sentence_layer=spec.sentence_layer, separate=spec.separate,
+                sent_missing=cols["sent"].count(None) if spec.count_missing else None)
         for set_name, edges in self.edges.items():
             table = pa.table({
                 "src": pa.array([ids[s] for s, _, _ in edges], pa.int64()),

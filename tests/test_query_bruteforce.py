@@ -30,11 +30,15 @@ class Drawn:
 @st.composite
 def corpora(draw) -> Drawn:
     b = CorpusBuilder()
-    b.layer("word", "token", token_layer="word", word_layer="word", edge_sets=("dep",), time=True)
-    b.layer("sentence", "span", token_layer="word", word_layer="word")
-    b.layer("chunk", "span", token_layer="word", word_layer="word", time=True, types={"kind": "str", "tag": "str"})
+    # ``sent`` names the sentence a node lies inside (the compiler may then join on it, see
+    # querylang/keys.py); the tree layer does not say so, and chunks are not counted
+    keyed = {"sentence_layer": "sentence"}
+    b.layer("word", "token", token_layer="word", word_layer="word", edge_sets=("dep",), time=True, **keyed)
+    b.layer("sentence", "span", token_layer="word", word_layer="word", separate=True, **keyed)
+    b.layer("chunk", "span", token_layer="word", word_layer="word", time=True, types={"kind": "str", "tag": "str"},
+            count_missing=False, **keyed)
     b.layer("tree", "tree", tree=True, token_layer="word", word_layer="word")
-    b.layer("mention", "span", token_layer="word", word_layer="word")
+    b.layer("mention", "span", token_layer="word", word_layer="word", **keyed)
     for d in range(draw(st.integers(1, 2))):
         forms = draw(st.lists(st.sampled_from(FORMS), min_size=1, max_size=6))
         text = " ".join(forms)
@@ -47,7 +51,10 @@ def corpora(draw) -> Drawn:
             words.append(b.node("word", doc, pos, pos + len(form), f"w{d}.{i}",
                                 time=(t0, t0 + draw(st.integers(1, 3))), form=form))
             pos += len(form) + 1
-        b.node("sentence", doc, 0, len(text), sent_id=f"d{d}-1")
+        # sentences: consecutive runs of words, a space between two (they never touch)
+        cuts = sorted(set(draw(st.lists(st.integers(1, len(forms) - 1), max_size=2)))) if len(forms) > 1 else []
+        for k, (i, j) in enumerate(zip([0] + cuts, cuts + [len(forms)])):
+            b.node("sentence", doc, bounds[i][0], bounds[j - 1][1], sent_id=f"d{d}-{k + 1}")
 
         def span():
             i = draw(st.integers(0, len(forms) - 1))
@@ -72,6 +79,8 @@ def corpora(draw) -> Drawn:
         for k in range(draw(st.integers(0, 6))):
             s, e = span()
             b.node("mention", doc, s, e, f"m{d}.{k}", entity=f"d{d}e{draw(st.integers(0, 1))}")
+            if draw(st.integers(0, 4)) == 0:
+                b.stale.add(f"m{d}.{k}")
         for _ in range(draw(st.integers(0, 5))):
             src, dst = draw(st.sampled_from(words)), draw(st.sampled_from(words))
             if src != dst:

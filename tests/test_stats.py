@@ -61,8 +61,9 @@ def test_key_value_statistics_and_merge_against_plain_counts(tmp_path):
                                "upos": ["NOUN", "NOUN", "VERB", None]})
     b = _write(tmp_path, "b", {"id": [5, 6], "feats": ["Number=Sing", "Number=Dual|Person=1"]})
     stats = part_stats(duckdb.connect(), [a, b], skip={"id"}, key_value=["feats"])
-    total, attrs, keys = merge([stats[a], stats[b]])
-    assert total == 6
+    merged = merge([stats[a], stats[b]])
+    total, attrs, keys = merged.rows, merged.attrs, merged.keys
+    assert total == 6 and merged.sent_null is None          # the parts have no sentence column
     assert "id" not in attrs
     assert attrs["upos"][1:] == (2, 1 + 2)                    # NOUN, VERB; one null in a, b has no upos
     assert attrs["feats"][2] == 1

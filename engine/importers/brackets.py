@@ -481,7 +481,10 @@ class BracketsImporter:
         self.aligned: list[tuple] = []
         self._pending: list[pa.Table] = []
         self._pending_rows = 0
-        batch.declare_layer(self.layer, "tree", {"tree": True, "format": FORMAT, "readings": False})
+        # no "sentence_layer": a tree's ``sent`` is the sentence its ``# sent`` line names, which
+        # its characters need not lie inside (a leaf aligned past the sentence's end)
+        batch.declare_layer(self.layer, "tree", {"tree": True, "format": FORMAT, "readings": False,
+                                                 "separate": False})
 
     def import_file(self, path: Path) -> None:
         self.path = path

@@ -184,7 +184,9 @@ class ConlluImporter:
 
     def _declare(self) -> None:
         n = self.names
-        common = {"token_layer": n["token"], "word_layer": n["word"], "format": FORMAT}
+        # every node lies inside the sentence its ``sent`` names; sentences share no character
+        common = {"token_layer": n["token"], "word_layer": n["word"], "format": FORMAT,
+                  "sentence_layer": n["sentence"], "separate": False}
         # FEATS and MISC stay one column each; the store derives feats.KEY and misc.KEY from them
         kv = {"key_value": ["feats", "misc"]}
         self.key_value = {n["token"]: kv["key_value"], n["empty"]: kv["key_value"], n["word"]: ["misc"]}
@@ -192,7 +194,7 @@ class ConlluImporter:
                                                        "edge_sets": [n["dep"], n["enhanced"]]})
         self.batch.declare_layer(n["word"], "token", {**common, "key_value": ["misc"]})
         self.batch.declare_layer(n["empty"], "token", {**common, **kv})
-        self.batch.declare_layer(n["sentence"], "span", common)
+        self.batch.declare_layer(n["sentence"], "span", {**common, "separate": True})
         self.batch.declare_layer(n["mention"], "span", {**common, "coreference": True})
         self.batch.declare_layer(n["dep"], "edges", {"nodes": n["token"]})
         self.batch.declare_layer(n["enhanced"], "edges", {"nodes": n["token"]})

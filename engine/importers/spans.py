@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pyarrow as pa
 
-from engine.align.anchor import finalise_new_layer, parquet
+from engine.align.anchor import SENTENCE_LAYER, finalise_new_layer, parquet
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.tabular import parse_int, parse_time, read_table, time_unit
@@ -71,7 +71,9 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     unit = time_unit(options.extra)
     tokens = _TokenIndex(batch, token_layer) if token_layer else None
     layer = options.layer(options.extra.get("layer") or Path(paths[0]).name.split(".")[0])
+    # ``sent`` is filled with the sentence each span lies inside (engine.align.anchor.structure_fills)
     batch.declare_layer(layer, "span", {"format": FORMAT, "anchor": options.extra.get("anchor") or "chars",
+                                        "sentence_layer": SENTENCE_LAYER, "separate": False,
                                         **({"time": True, "time_axis": True} if anchor == "time" else {})})
     durations = dict(batch.store._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL"))
     durations.update(batch._durations)

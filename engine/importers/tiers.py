@@ -21,7 +21,8 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from engine.align.anchor import TIME_WORDS, fill_new_rows, finalise_new_layer, times_onto_stored_layers
+from engine.align.anchor import (SENTENCE_LAYER, TIME_WORDS, fill_new_rows, finalise_new_layer,
+                                 times_onto_stored_layers)
 from engine.align.report import check_alignment
 from engine.align.sequence import align_forms
 from engine.errors import StrataError
@@ -213,7 +214,8 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         words = tier in WORD_TIERS
         ords[layer] = next_ord(batch.store, layer)
         batch.declare_layer(layer, "token" if words else "span",
-                            {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words, "tier": tier})
+                            {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words, "tier": tier,
+                             "sentence_layer": SENTENCE_LAYER, "separate": False})
         sel = order[t_sorted == t]          # still by document, then (start, end)
         table, parts = _tier_table(batch, rows, sel, doc_code[sel], infos, words, ords[layer])
         ords[layer] += table.num_rows
