@@ -79,6 +79,7 @@ _LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
 #: catalogs made before them at their next commit.
 _STATS_DDL = """
 CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT, sent_null BIGINT);
+ALTER TABLE part_stats ADD COLUMN IF NOT EXISTS sent_null BIGINT;
 CREATE TABLE IF NOT EXISTS part_attrs (path VARCHAR, attr VARCHAR, type VARCHAR, n_null BIGINT, registers BLOB);
 CREATE TABLE IF NOT EXISTS part_keys (path VARCHAR, col VARCHAR, key VARCHAR, n BIGINT, registers BLOB);
 """
@@ -578,7 +579,7 @@ class Batch:
                          if name in with_parts or name in listed])
                 _insert(con, "INSERT INTO parts", ("layer", "path", "rows", "import_id"), parts)
                 now, options = _now(), json.dumps(self.options)
-                _insert(con, "INSERT INTO imports", ("import_id", "source", "sha256", "importer", "options", "at"),
+                _insert(con, "INSERT INTO imports", ("import_id", "source", "sha256", "importer", "options", "imported_at"),
                         [(self.import_id, src, sha, self.importer, options, now) for src, sha in self._sources])
                 _insert(con, "INSERT OR REPLACE INTO meta", ("key", "value"),
                         [(k, str(v)) for k, v in self._meta.items()])
@@ -691,12 +692,12 @@ class Batch:
 
 # -- helpers ----------------------------------------------------------------------------
 def _insert(con: duckdb.DuckDBPyConnection, statement: str, columns: tuple[str, ...], rows: list[tuple]) -> None:
-    """``statement`` (an INSERT up to its table) with ``rows`` as one Arrow table."""
+    """``statement`` (an INSERT up to its table) with ``rows`` as one Arrow table, by column name."""
     if not rows:
         return
     con.register("new_rows", pa.table({c: list(v) for c, v in zip(columns, zip(*rows))}))
     try:
-        con.execute(f"{statement} SELECT * FROM new_rows")
+        con.execute(f"{statement} ({', '.join(_ident(c) for c in columns)}) SELECT * FROM new_rows")
     finally:
         con.unregister("new_rows")
 

@@ -232,3 +232,20 @@ def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_pat
     assert [f for (f,) in order] == token_parts                   # the views' order of parts = id order
     for (lo, hi, s0, e0), (lo2, _, s1, _) in zip(firsts, firsts[1:]):
         assert hi < lo2 and e0 <= s1
+
+
+def test_the_same_input_gives_the_same_ids_whoever_imports_a_block(tmp_path, split_small, monkeypatch):
+    """Each block has counters of its own: two imports, where the processes met at different
+    blocks (MAIN_MAX_SHARE 0.3 and 0.7), store the same ids, anchors, ordinals and tree numbers."""
+    files = [gum_file("dev")]
+    tables = []
+    for share in (0.3, 0.7):
+        monkeypatch.setattr(conllu_parallel, "MAIN_MAX_SHARE", share)
+        corpus = _import(tmp_path, f"s{share}", files, True, monkeypatch)
+        con = corpus.connect()
+        tables.append(con.sql('SELECT id, doc, start, "end", sent, ord, parent, pre, post FROM token ORDER BY id')
+                      .to_arrow_table())
+        tables.append(con.sql("SELECT id, chain, start FROM mention ORDER BY id").to_arrow_table())
+        tables.append(con.sql("SELECT doc, name, base FROM documents ORDER BY doc").to_arrow_table())
+        con.close()
+    assert tables[0].equals(tables[3]) and tables[1].equals(tables[4]) and tables[2].equals(tables[5])

@@ -373,30 +373,46 @@ def structure_fills(batch: Batch) -> list[Fill]:
     return fills
 
 
-def fill_new_rows(batch: Batch, table: pa.Table, *, exclude: set[str] = frozenset()) -> pa.Table | None:
-    """Rows of a time-axis layer completed before they are written (what :func:`finalise_new_layer`
-    would do at commit, without writing and reading them back): characters from the time words
-    (those of the layers in ``exclude`` left out), then sentence and token references.
+def new_row_filler(batch: Batch, *, time_axis: bool, exclude: set[str] = frozenset()):
+    """A function completing rows of a new layer before they are written (what
+    :func:`finalise_new_layer` would do at commit, without writing and reading them back).
 
-    ``None`` when a reference is unfit for range lookups: write the rows as they are and
-    finalise at commit (the SQL joins decide).
+    ``time_axis``: the rows came with times and take characters from the time words (those of
+    the layers in ``exclude`` left out), then sentence and token references; otherwise they
+    came with characters and take sentence and token references and times. The references
+    are read once, here, for every call of the function. ``None`` when a reference is unfit
+    for range lookups (finalise at commit: the SQL joins decide); the function itself returns
+    ``None`` when a slice of rows turns out so.
     """
     words = [p for n in _time_word_layers(batch) if n not in exclude for p in layer_paths(batch, n)]
-    stages = [s for s in ([chars_from_times(words)] if words else [], structure_fills(batch)) if s]
-    if not stages or table.num_rows == 0:
-        return table
+    if time_axis:
+        stages = [s for s in ([chars_from_times(words)] if words else [], structure_fills(batch)) if s]
+    else:
+        stages = [s for s in (structure_fills(batch) + ([times_from_chars(words)] if words else []),) if s]
     if not all(f.arrays is not None for st in stages for f in st):
         return None
-    schema = pa.schema([pa.field(n, t) for n, t in ANCHOR_COLUMNS.items()]
-                       + [f for f in table.schema if f.name not in ANCHOR_COLUMNS])
-    pieces = []
-    try:
-        for k in range(0, table.num_rows, ROW_GROUP_SIZE):
-            cols = _fill_columns(table.slice(k, ROW_GROUP_SIZE), schema, stages)
-            pieces.append(pa.table([cols[f.name] for f in schema], schema=schema))
-    except _Fallback:
-        return None
-    return pa.concat_tables(pieces)
+
+    def fill(table: pa.Table) -> pa.Table | None:
+        if not stages or table.num_rows == 0:
+            return table
+        schema = pa.schema([pa.field(n, t) for n, t in ANCHOR_COLUMNS.items()]
+                           + [f for f in table.schema if f.name not in ANCHOR_COLUMNS])
+        pieces = []
+        try:
+            for k in range(0, table.num_rows, ROW_GROUP_SIZE):
+                cols = _fill_columns(table.slice(k, ROW_GROUP_SIZE), schema, stages)
+                pieces.append(pa.table([cols[f.name] for f in schema], schema=schema))
+        except _Fallback:
+            return None
+        return pa.concat_tables(pieces)
+    fill.gives_times = bool(words) and not time_axis
+    return fill
+
+
+def fill_new_rows(batch: Batch, table: pa.Table, *, exclude: set[str] = frozenset()) -> pa.Table | None:
+    """Rows of a time-axis layer completed before they are written (see :func:`new_row_filler`)."""
+    fill = new_row_filler(batch, time_axis=True, exclude=exclude)
+    return None if fill is None else fill(table)
 
 
 def finalise_new_layer(batch: Batch, layer: str, *, time_axis: bool) -> None:

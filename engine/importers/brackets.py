@@ -24,7 +24,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from engine.align.anchor import finalise_new_layer, parquet
+from engine.align.anchor import finalise_new_layer, new_row_filler, parquet
 from engine.align.normalise import BRACKET_ESCAPES
 from engine.align.report import check_alignment
 from engine.align.sequence import GOOD, align_forms, align_segments
@@ -481,6 +481,9 @@ class BracketsImporter:
         self.aligned: list[tuple] = []
         self._pending: list[pa.Table] = []
         self._pending_rows = 0
+        self._filler = False                      # made at the first write (see _flush)
+        self._finalise_at_commit = False
+        self._gave_times = False
         # no "sentence_layer": a tree's ``sent`` is the sentence its ``# sent`` line names, which
         # its characters need not lie inside (a leaf aligned past the sentence's end)
         batch.declare_layer(self.layer, "tree", {"tree": True, "format": FORMAT, "readings": False,
@@ -670,8 +673,19 @@ class BracketsImporter:
             self._flush()
 
     def _flush(self) -> None:
+        """Write the buffered rows, with sentence and token references and times filled in
+        before the write (the reference layers are read once per import); rows that cannot be
+        filled so are finalised at commit instead, by rewriting the layer."""
         if self._pending:
-            self.batch.write_nodes(self.layer, "tree", pa.concat_tables(self._pending, promote_options="default"))
+            table = pa.concat_tables(self._pending, promote_options="default")
+            if self._filler is False:
+                self._filler = new_row_filler(self.batch, time_axis=False)
+            filled = self._filler(table) if self._filler is not None else None
+            if filled is None:
+                self._finalise_at_commit = True
+            elif self._filler.gives_times:
+                self._gave_times = True
+            self.batch.write_nodes(self.layer, "tree", table if filled is None else filled)
         self._pending, self._pending_rows = [], 0
 
     def _traces(self, ft: _FileTrees, nodes: np.ndarray, row_tree: np.ndarray, empty: np.ndarray,
@@ -717,7 +731,10 @@ class BracketsImporter:
         if warning:
             self.report.warnings.append(warning)
         layer = self.layer
-        self.batch.on_commit(lambda b: finalise_new_layer(b, layer, time_axis=False))
+        if self._finalise_at_commit:
+            self.batch.on_commit(lambda b: finalise_new_layer(b, layer, time_axis=False))
+        elif self._gave_times:
+            props["time"] = True
 
 
 def _place_points(ls: np.ndarray, le: np.ndarray, good: np.ndarray, empty: np.ndarray, tree: np.ndarray,

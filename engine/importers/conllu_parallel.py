@@ -13,10 +13,10 @@ How:
    numbers, anchors, document numbers) that starts past an upper bound of what the blocks
    before it can use: a block of B bytes and L lines has fewer than B nodes, chains and
    text characters, fewer than L ordinals and 2L order numbers (:func:`bounds`).
-3. The main process imports blocks 0, 1, 2, ... into the batch as usual; the child
-   imports the last block, then the one before it, and so on, each from its own counter
-   range, writing its Parquet parts into the batch's staging folder under a tag of its
-   own. A block goes to whoever claims it first (:class:`Claims`: creating a file is
+3. The main process imports blocks 0, 1, 2, ... into the batch; the child imports the
+   last block, then the one before it, and so on; each block from its own counter range,
+   whoever imports it, so the same input always gives the same ids and anchors. The child
+   writes its Parquet parts into the batch's staging folder under a tag of its own. A block goes to whoever claims it first (:class:`Claims`: creating a file is
    atomic), so the two meet wherever their speeds make them meet: a busy core or a slow
    start of the child costs no idle time on the other.
 4. The main process then adopts the child's documents, parts and counters.
@@ -151,7 +151,12 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             limit = total
         with byte_progress(total, f"import {len(paths)} files", options.progress) as advance:
             mine, done = 0, 0
+            starts = block_starts(blocks, start)
             while mine < len(blocks) and done + blocks[mine].length <= limit and claims.claim(mine):
+                # every block from its own counters, whichever process imports it: the same
+                # input always gives the same ids, anchors and ordinals
+                batch.advance_counters(starts[mine])
+                imp.tok_ord, imp.word_ord, imp.order = (starts[mine][k] for k in ("tok_ord", "word_ord", "order"))
                 imp.block_no = mine
                 _run(imp, [blocks[mine]], advance)
                 done += blocks[mine].length
@@ -171,9 +176,12 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             except (EOFError, pickle.UnpicklingError):   # the child died without a word (killed, out of memory)
                 result = {"error": "the second import process ended early"}
             child.wait()
-            if not _adoptable(result, imp, batch, block_starts(blocks, start)[mine], mine):
+            if not _adoptable(result, imp, batch, starts[mine], mine):
                 _discard(batch, "q")
-                _run(imp, theirs, advance)
+                for k in range(mine, len(blocks)):
+                    batch.advance_counters(starts[k])
+                    imp.tok_ord, imp.word_ord, imp.order = (starts[k][c] for c in ("tok_ord", "word_ord", "order"))
+                    _run(imp, [blocks[k]], advance)
             else:
                 advance(sum(b.length for b in theirs))
                 _adopt(result, imp, batch)
