@@ -209,8 +209,9 @@ class Store:
             sent_missing: dict[str, int] = {}
             for layer, attr, typ, nd, nn in self._rows(
                     "SELECT layer, attr, type, n_distinct, n_null FROM layer_attrs ORDER BY layer, attr"):
+                if attr == "sent":                # structural: only its null count is kept
+                    sent_missing[layer] = nn
                 if attr in STRUCTURAL:
-                    sent_missing[layer] = nn if attr == "sent" else sent_missing.get(layer)
                     continue
                 attrs.setdefault(layer, {})[attr] = AttrInfo(attr, typ, nd, nn)
             rows = dict(self._rows("SELECT layer, sum(rows) FROM parts GROUP BY layer"))

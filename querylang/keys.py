@@ -26,7 +26,8 @@ from __future__ import annotations
 from querylang import ast
 from querylang.catalog import LayerInfo
 
-RELATIONS = {"inside": "inside", "contains": "inside", "overlaps": "overlaps"}
+#: Span relations (characters) that hold only within one sentence when both nodes have one.
+RELATIONS = {"inside", "contains", "overlaps"}
 
 
 def _sent(var: str) -> ast.Ref:

@@ -45,13 +45,9 @@ _SHARED_COLUMNS = ("cid", "form", "head", "deps", "misc")
 _RESERVED = set(ANCHOR_COLUMNS) | {"ord", "sent_id", "text", "comments"}
 
 
-def _q(v: str) -> str:
-    """A SQL string literal."""
-    return "'" + v.replace("'", "''") + "'"
-
-
-def _ident(v: str) -> str:
-    return '"' + v.replace('"', '""') + '"'
+def _string_offsets(a: pa.StringArray) -> np.ndarray:
+    """The offsets of a string array into its data buffer (length + 1 values, zero-copy)."""
+    return np.frombuffer(a.buffers()[1], dtype=np.int32)[a.offset:a.offset + len(a) + 1]
 
 
 def _np(a) -> np.ndarray:
@@ -580,7 +576,7 @@ class ConlluImporter:
         # document texts from one joined Arrow array
         sep = np.where(last, "\n", np.where(no_space, "", " "))
         joined = pc.binary_join_element_wise(form.take(pa.array(u_rows)), pa.array(sep), "")
-        offsets = np.frombuffer(joined.buffers()[1], dtype=np.int32)[joined.offset:joined.offset + len(joined) + 1]
+        offsets = _string_offsets(joined)
         data = joined.buffers()[2]
         texts = []
         for k, f0 in enumerate(doc_first):
@@ -913,7 +909,7 @@ class ConlluImporter:
         last = np.r_[g[1:] != g[:-1], True] if len(rows) else np.zeros(0, bool)
         if len(rows):
             joined = pc.binary_join_element_wise(lines, pa.array(np.where(last, "", "\n")), "")
-            offsets = np.frombuffer(joined.buffers()[1], dtype=np.int32)[joined.offset:joined.offset + len(joined) + 1]
+            offsets = _string_offsets(joined)
             first_row = np.searchsorted(g, np.arange(n_sent + 1))
             table["comments"] = pa.StringArray.from_buffers(
                 n_sent, pa.py_buffer(offsets[first_row].astype(np.int32)), joined.buffers()[2])

@@ -16,9 +16,10 @@ How:
 3. The main process imports blocks 0, 1, 2, ... into the batch; the child imports the
    last block, then the one before it, and so on; each block from its own counter range,
    whoever imports it, so the same input always gives the same ids and anchors. The child
-   writes its Parquet parts into the batch's staging folder under a tag of its own. A block goes to whoever claims it first (:class:`Claims`: creating a file is
-   atomic), so the two meet wherever their speeds make them meet: a busy core or a slow
-   start of the child costs no idle time on the other.
+   writes its Parquet parts into the batch's staging folder under a tag of its own. A block
+   goes to whoever claims it first (:class:`Claims`: creating a file is atomic), so the two
+   meet wherever their speeds make them meet: a busy core or a slow start of the child
+   costs no idle time on the other.
 4. The main process then adopts the child's documents, parts and counters.
 
 The gaps between blocks are harmless: ids need only be unique and increasing in file
@@ -85,13 +86,15 @@ def plan(paths: list[Path]) -> list[Block]:
     return [Block(str(p), *b) for p in paths for b in block_plan(p, SPLIT_BLOCK_BYTES)]
 
 
-def bounds(blocks: list[Block]) -> dict[str, int]:
-    """Upper bounds of what importing ``blocks`` can use of each counter (see the module docstring)."""
-    size = sum(b.length for b in blocks)
-    lines = sum(b.lines for b in blocks)
-    docs = sum(b.newdocs + 1 for b in blocks)
+def _room(size: int, lines: int, docs: int) -> dict[str, int]:
+    """Upper bounds of each counter for blocks of ``size`` bytes, ``lines`` lines, ``docs`` documents."""
     return {"next_id": size + 1, "next_chain": size + 1, "next_base": size + docs * (DOC_GAP + 1) + 1,
             "next_doc": docs + 1, "tok_ord": lines + 1, "word_ord": lines + 1, "order": 2 * lines + 2}
+
+
+def bounds(blocks: list[Block]) -> dict[str, int]:
+    """Upper bounds of what importing ``blocks`` can use of each counter (see the module docstring)."""
+    return _room(sum(b.length for b in blocks), sum(b.lines for b in blocks), sum(b.newdocs + 1 for b in blocks))
 
 
 def block_starts(blocks: list[Block], start: dict[str, int]) -> list[dict[str, int]]:
@@ -100,8 +103,7 @@ def block_starts(blocks: list[Block], start: dict[str, int]) -> list[dict[str, i
     out = []
     size = lines = docs = 0
     for b in blocks:
-        room = {"next_id": size + 1, "next_chain": size + 1, "next_base": size + docs * (DOC_GAP + 1) + 1,
-                "next_doc": docs + 1, "tok_ord": lines + 1, "word_ord": lines + 1, "order": 2 * lines + 2}
+        room = _room(size, lines, docs)
         out.append({k: start[k] + room[k] for k in COUNTERS})
         size, lines, docs = size + b.length, lines + b.lines, docs + b.newdocs + 1
     return out
@@ -153,12 +155,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             mine, done = 0, 0
             starts = block_starts(blocks, start)
             while mine < len(blocks) and done + blocks[mine].length <= limit and claims.claim(mine):
-                # every block from its own counters, whichever process imports it: the same
-                # input always gives the same ids, anchors and ordinals
-                batch.advance_counters(starts[mine])
-                imp.tok_ord, imp.word_ord, imp.order = (starts[mine][k] for k in ("tok_ord", "word_ord", "order"))
-                imp.block_no = mine
-                _run(imp, [blocks[mine]], advance)
+                _run_own(imp, batch, blocks, starts, mine, advance)
                 done += blocks[mine].length
                 mine += 1
             theirs = blocks[mine:]
@@ -179,9 +176,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             if not _adoptable(result, imp, batch, starts[mine], mine):
                 _discard(batch, "q")
                 for k in range(mine, len(blocks)):
-                    batch.advance_counters(starts[k])
-                    imp.tok_ord, imp.word_ord, imp.order = (starts[k][c] for c in ("tok_ord", "word_ord", "order"))
-                    _run(imp, [blocks[k]], advance)
+                    _run_own(imp, batch, blocks, starts, k, advance)
             else:
                 advance(sum(b.length for b in theirs))
                 _adopt(result, imp, batch)
@@ -228,6 +223,21 @@ def _run(imp: ConlluImporter, blocks: list[Block], advance=lambda n: None) -> No
         advance(b.length)
 
 
+def _enter_block(imp: ConlluImporter, k: int, start: dict[str, int]) -> None:
+    """The importer's own counters at block ``k``'s start (the batch's are set by the caller)."""
+    imp.tok_ord, imp.word_ord, imp.order = start["tok_ord"], start["word_ord"], start["order"]
+    imp.block_no = k
+
+
+def _run_own(imp: ConlluImporter, batch: Batch, blocks: list[Block], starts: list[dict[str, int]], k: int,
+             advance) -> None:
+    """Block ``k`` in the main process, from its own counters, as the child would import it:
+    the same input always gives the same ids, anchors and ordinals."""
+    batch.advance_counters(starts[k])
+    _enter_block(imp, k, starts[k])
+    _run(imp, [blocks[k]], advance)
+
+
 def _adoptable(result: dict, imp: ConlluImporter, batch: Batch, child_start: dict, first_block: int) -> bool:
     """The child's work stands if it finished, imported exactly the blocks the main process
     left, and shares no names with them."""
@@ -268,7 +278,7 @@ class _ChildBatch:
     """What :class:`ConlluImporter` needs of a batch, recorded for the main process to adopt.
 
     Blocks come in descending order, each with counters of its own (:meth:`start_block`);
-    what is recorded is put back in file order at the end (:meth:`result`).
+    what is recorded is put back in file order by :func:`_child_import`.
     """
 
     def __init__(self, store: Store, stage: Path) -> None:
@@ -286,8 +296,7 @@ class _ChildBatch:
     def start_block(self, block: int, start: dict[str, int], imp: ConlluImporter) -> None:
         self.block = block
         self.next = {k: start[k] for k in ("next_id", "next_chain", "next_base", "next_doc")}
-        imp.tok_ord, imp.word_ord, imp.order = start["tok_ord"], start["word_ord"], start["order"]
-        imp.block_no = block
+        _enter_block(imp, block, start)
 
     def end_block(self, imp: ConlluImporter) -> None:
         used = {**self.next, "tok_ord": imp.tok_ord, "word_ord": imp.word_ord, "order": imp.order}
