@@ -114,6 +114,9 @@ def export(
     prefix: str = typer.Option("", "--prefix", help="export the layers of this prefix"),
 ) -> None:
     """Write a corpus back out (CoNLL-U)."""
+    from engine.output_files import check_writable
+    if output is not None:
+        check_writable(output, "export")
     c = _open(corpus)
     if output is None:
         sys.stdout.write(c.export(format, None, prefix))
@@ -127,29 +130,31 @@ def query(
     corpus: Path = typer.Argument(..., help="the corpus folder"),
     text: Optional[str] = typer.Argument(None, help="the query, or - to read it from stdin"),
     file: Optional[Path] = typer.Option(None, "-f", "--file", help="read the query from a file"),
-    format: str = typer.Option("table", "--format", help="table, csv, tsv, jsonl or parquet"),
-    output: Optional[Path] = typer.Option(None, "-o", "--output", help="file to write"),
+    format: Optional[str] = typer.Option(None, "--format", help="table (the screen), csv, tsv, jsonl or "
+                                         "parquet (default: from the ending of -o, else table)"),
+    output: Optional[Path] = typer.Option(None, "-o", "--output", help="file for every hit: .csv, .tsv, "
+                                          ".jsonl or .parquet"),
     limit: Optional[int] = typer.Option(None, "--limit", help="at most this many hits"),
     context: int = typer.Option(5, "--context", help="words of context left and right"),
 ) -> None:
-    """Run a query and print or save its hit table."""
+    """Run a query and print its hit table, or save every hit to a file."""
+    from engine.output_files import check_writable, hit_format
+    fmt = hit_format(output, format)
+    if output is not None:
+        check_writable(output, "hit table")
+    elif fmt == "parquet":
+        raise StrataError("parquet output needs a file: add -o FILE")
     q = _query_text(text, file)
     hits = _open(corpus).query(q, limit=limit, context=context)
-    write_hits(hits, format, output)
+    write_hits(hits, fmt, output)
 
 
 def write_hits(hits, format: str, output: Optional[Path]) -> None:
+    """The screen table on stdout, or every hit in ``format`` to ``output`` (or stdout)."""
     writers = {"csv": hits.to_csv, "tsv": hits.to_tsv, "jsonl": hits.to_jsonl, "parquet": hits.to_parquet}
     if format == "table":
-        if output is not None:
-            Path(output).write_text(hits.render_table(width=200) + "\n", encoding="utf-8")
-        else:
-            out.print(_escape(hits.render_table(width=out.width)), soft_wrap=True)
+        out.print(_escape(hits.render_table(width=out.width)), soft_wrap=True)
         return
-    if format not in writers:
-        raise StrataError(f"unknown output format {format!r}; use table, csv, tsv, jsonl or parquet")
-    if format == "parquet" and output is None:
-        raise StrataError("parquet output needs a file: add -o FILE")
     if output is None:
         with tempfile.TemporaryDirectory() as tmp:
             path = writers[format](Path(tmp) / f"hits.{format}")
@@ -227,6 +232,10 @@ def bench(
     if missing:
         raise StrataError(f"the benchmark needs {', '.join(missing)}: install them with pip install -e '.[bench]'")
     from benchmarks.harness import BenchError, _formats, _tokens, run_bench
+    from engine.output_files import check_writable
+    for path, what in ((json_file, "benchmark record"), (plot, "plot")):
+        if path is not None:
+            check_writable(path, what)
     try:
         sizes = [n for t in tokens for n in _tokens(t)]
         fmts = _formats(formats)

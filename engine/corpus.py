@@ -68,10 +68,9 @@ class Corpus:
             buf = io.StringIO()
             module.export(self.store, buf, prefix)
             return buf.getvalue()
-        tmp = Path(str(out) + ".part")
-        with open(tmp, "w", encoding="utf-8", newline="") as f:
+        from engine.output_files import replaced_when_done
+        with replaced_when_done(out, "export") as tmp, open(tmp, "w", encoding="utf-8", newline="") as f:
             module.export(self.store, f, prefix)
-        os.replace(tmp, out)
         return None
 
     # -- looking -----------------------------------------------------------------------

@@ -15,6 +15,8 @@ from typing import Any
 
 import pyarrow as pa
 
+from engine.output_files import replaced_when_done
+
 REPR_ROWS = 10
 TSV_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})
 
@@ -55,37 +57,34 @@ class Hits:
         return self.table.to_pandas()
 
     def to_csv(self, path: str | Path) -> Path:
-        path = Path(path)
-        with path.open("w", encoding="utf-8", newline="") as out:
+        with replaced_when_done(path, "hit table") as tmp, tmp.open("w", encoding="utf-8", newline="") as out:
             writer = csv.writer(out, lineterminator="\r\n", quoting=csv.QUOTE_MINIMAL)
             writer.writerow(self.columns)
             for row in self.table.to_pylist():
                 writer.writerow([_cell(row[c]) if not isinstance(row[c], float) else repr(row[c])
                                  for c in self.columns])
-        return path
+        return Path(path)
 
     def to_tsv(self, path: str | Path) -> Path:
-        path = Path(path)
-        with path.open("w", encoding="utf-8", newline="") as out:
+        with replaced_when_done(path, "hit table") as tmp, tmp.open("w", encoding="utf-8", newline="") as out:
             out.write("\t".join(c.translate(TSV_ESCAPES) for c in self.columns) + "\n")
             for row in self.table.to_pylist():
                 cells = ["" if row[c] is None else (repr(row[c]) if isinstance(row[c], float) else str(row[c]))
                          for c in self.columns]
                 out.write("\t".join(x.translate(TSV_ESCAPES) for x in cells) + "\n")
-        return path
+        return Path(path)
 
     def to_jsonl(self, path: str | Path) -> Path:
-        path = Path(path)
-        with path.open("w", encoding="utf-8") as out:
+        with replaced_when_done(path, "hit table") as tmp, tmp.open("w", encoding="utf-8", newline="") as out:
             for row in self.table.to_pylist():
                 out.write(json.dumps(row, ensure_ascii=False, default=str) + "\n")
-        return path
+        return Path(path)
 
     def to_parquet(self, path: str | Path) -> Path:
         import pyarrow.parquet as pq
-        path = Path(path)
-        pq.write_table(self.table, path)
-        return path
+        with replaced_when_done(path, "hit table") as tmp:
+            pq.write_table(self.table, tmp)
+        return Path(path)
 
     # ---- terminal ---------------------------------------------------------------------
     def render_table(self, width: int = 100, max_rows: int | None = 50) -> str:

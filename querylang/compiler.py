@@ -490,6 +490,20 @@ def kwic_layer(checked: Checked) -> LayerInfo | None:
     return None
 
 
+#: the largest LIMIT DuckDB takes (BIGINT); a larger one cannot change any result
+LIMIT_MAX = 2 ** 63 - 1
+
+
+def effective_limit(in_query: int | None, given: int | None) -> int | None:
+    """The smaller of the query's own ``limit`` and the caller's, capped at :data:`LIMIT_MAX`.
+
+    >>> effective_limit(10, None), effective_limit(None, 5), effective_limit(10 ** 30, None) == LIMIT_MAX
+    (10, 5, True)
+    """
+    limits = [n for n in (in_query, given) if n is not None]
+    return min(limits + [LIMIT_MAX]) if limits else None
+
+
 def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: int = 5) -> SqlQuery:
     """The whole statement: matches (m), reading filter (k), output with KWIC.
 
@@ -498,7 +512,7 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     """
     plain = _statement(checked, plan, limit, context, windowed=False)
     q = checked.query
-    eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
+    eff_limit = effective_limit(q.limit, limit)
     if plain.kind != "hits":
         return plain
     if not plan.document_local or eff_limit is None or eff_limit <= 0:
@@ -602,7 +616,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
                         f"ON r{n}.s = {last}._sent{i0} WHERE g{n}.n = r{n}.n)")
             last = f"k{n}"
 
-    eff_limit = q.limit if limit is None else (limit if q.limit is None else min(limit, q.limit))
+    eff_limit = effective_limit(q.limit, limit)
     limit_sql = f" LIMIT {sb.param(int(eff_limit))}" if eff_limit is not None else ""
     limit_param = len(sb.params) - 1 if eff_limit is not None else None
     order = ", ".join(["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])

@@ -303,3 +303,97 @@ def test_explain_shows_sql_with_parameters_and_the_duckdb_plan(small):
 def test_explain_of_a_mistake_is_a_user_error(small):
     done = strata("explain", small[0], "find w = wrod")
     assert done.returncode == 2 and "did you mean" in done.stderr and "Traceback" not in done.stderr
+
+
+# ---- the file's ending picks the format ------------------------------------------------
+
+def read_back(path, fmt: str) -> list[list[str]] | list[dict]:
+    """A hit file read with an independent reader of its format."""
+    if fmt == "csv":
+        with open(path, encoding="utf-8", newline="") as f:
+            return list(csv.reader(f))
+    if fmt == "tsv":
+        return [line.split("\t") for line in path.read_text(encoding="utf-8").splitlines()]
+    if fmt == "jsonl":
+        return [json.loads(line) for line in path.read_text(encoding="utf-8").splitlines()]
+    return pq.read_table(path).to_pylist()
+
+
+@pytest.mark.parametrize("fmt", ["csv", "tsv", "jsonl", "parquet"])
+def test_the_ending_picks_the_format_and_every_hit_is_written(small, tmp_path, fmt):
+    path, corpus = small
+    query = "find w = word"
+    n = len(corpus.query(query))
+    assert n > 50                                  # more than the screen table shows
+    out = tmp_path / f"hits.{fmt.upper() if fmt == 'tsv' else fmt}"
+    done = strata("query", path, query, "-o", str(out))
+    assert done.returncode == 0, done.stderr
+    rows = read_back(out, fmt)
+    header = fmt in ("csv", "tsv")
+    assert len(rows) == n + header
+    if header:
+        assert rows[0] == corpus.query(query).columns
+    else:
+        assert rows == corpus.query(query).rows()
+
+
+def test_format_overrides_the_ending(small, tmp_path):
+    path, corpus = small
+    out = tmp_path / "hits.csv"
+    done = strata("query", path, COMMAS, "-o", str(out), "--format", "jsonl")
+    assert done.returncode == 0, done.stderr
+    assert read_back(out, "jsonl") == corpus.query(COMMAS).rows()
+
+
+@pytest.mark.parametrize("name", ["hits.txt", "hits", "hits.csv.bak"])
+def test_an_unknown_ending_is_refused_with_the_known_ones(small, tmp_path, name):
+    out = tmp_path / name
+    done = strata("query", small[0], COMMAS, "-o", str(out))
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert all(e in done.stderr for e in (".csv", ".tsv", ".jsonl", ".parquet"))
+    assert name in done.stderr and not out.exists()
+
+
+def test_the_screen_table_never_goes_to_a_file(small, tmp_path):
+    out = tmp_path / "hits.csv"
+    done = strata("query", small[0], COMMAS, "-o", str(out), "--format", "table")
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert "never goes to a file" in done.stderr and not out.exists()
+
+
+@pytest.mark.parametrize("args", [
+    ["query", "{corpus}", COMMAS, "-o", "{missing}/hits.csv"],
+    ["query", "{corpus}", COMMAS, "-o", "{missing}/hits.parquet"],
+    ["export", "{corpus}", "-o", "{missing}/back.conllu"],
+    ["bench", "--json", "{missing}/bench.json"],
+    ["bench", "--plot", "{missing}/bench.png"],
+])
+def test_a_missing_output_folder_is_a_user_error(small, tmp_path, args):
+    missing = tmp_path / "no such folder"
+    done = strata(*[a.format(corpus=small[0], missing=missing) for a in args])
+    assert done.returncode == 2, done.stderr
+    assert "Traceback" not in done.stderr and "does not exist" in done.stderr
+    assert not missing.exists()
+
+
+def test_a_failed_query_leaves_an_older_file_as_it_was(small, tmp_path):
+    out = tmp_path / "hits.csv"
+    out.write_bytes(b"older hits\r\n")
+    done = strata("query", small[0], "find w = wrod", "-o", str(out))
+    assert done.returncode == 2
+    assert out.read_bytes() == b"older hits\r\n"
+    assert [p.name for p in tmp_path.iterdir()] == ["hits.csv"]      # no temporary file left
+
+
+@pytest.mark.parametrize("limit", ["1000000", str(2 ** 63 - 1), str(2 ** 63), "9" * 30])
+def test_a_limit_past_the_corpus_or_past_64_bits_is_accepted(small, tmp_path, limit):
+    """Larger than any corpus: every hit, by the option and by the query's own `limit`."""
+    path, corpus = small
+    n = len(corpus.query("find w = word"))
+    for args in (["find w = word", "--limit", limit], [f"find w = word limit {limit}"]):
+        out = tmp_path / "hits.jsonl"
+        done = strata("query", path, *args, "-o", str(out))
+        assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
+        assert len(read_back(out, "jsonl")) == n
+    done = strata("query", path, "find w = word count", "--limit", limit)
+    assert done.returncode == 0 and str(n) in done.stdout
