@@ -21,12 +21,22 @@ REPR_ROWS = 10
 TSV_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})
 
 
-def _cell(value: Any) -> str:
+MISSING = "(missing)"
+
+
+def file_cell(value: Any) -> str:
+    """A value as CSV and TSV write it: nothing for a missing value, a float as the shortest
+    decimal that reads back as the same double (Python's repr), everything else as str()."""
     if value is None:
         return ""
     if isinstance(value, float):
-        return f"{value:.6g}"
+        return repr(value)
     return str(value)
+
+
+def screen_cell(value: Any) -> str:
+    """A value on screen: like a file cell, but a missing value says so."""
+    return MISSING if value is None else file_cell(value)
 
 
 @dataclass
@@ -61,16 +71,14 @@ class Hits:
             writer = csv.writer(out, lineterminator="\r\n", quoting=csv.QUOTE_MINIMAL)
             writer.writerow(self.columns)
             for row in self.table.to_pylist():
-                writer.writerow([_cell(row[c]) if not isinstance(row[c], float) else repr(row[c])
-                                 for c in self.columns])
+                writer.writerow([file_cell(row[c]) for c in self.columns])
         return Path(path)
 
     def to_tsv(self, path: str | Path) -> Path:
         with replaced_when_done(path, "hit table") as tmp, tmp.open("w", encoding="utf-8", newline="") as out:
             out.write("\t".join(c.translate(TSV_ESCAPES) for c in self.columns) + "\n")
             for row in self.table.to_pylist():
-                cells = ["" if row[c] is None else (repr(row[c]) if isinstance(row[c], float) else str(row[c]))
-                         for c in self.columns]
+                cells = [file_cell(row[c]) for c in self.columns]
                 out.write("\t".join(x.translate(TSV_ESCAPES) for x in cells) + "\n")
         return Path(path)
 
@@ -99,7 +107,7 @@ class Hits:
         if self.kind == "hits" and {"left", "match", "right"} <= set(cols):
             cols = ["left", "match", "right"] + [c for c in cols if c not in ("left", "match", "right")
                                                   and not c.endswith((".char_start", ".char_end"))]
-        cells = [[_cell(r[c]).replace("\n", " ").replace("\t", " ") for c in cols] for r in shown]
+        cells = [[screen_cell(r[c]).replace("\n", " ").replace("\t", " ") for c in cols] for r in shown]
         widths = [max([len(c)] + [len(row[i]) for row in cells]) for i, c in enumerate(cols)]
         # shrink the widest column down to a legible minimum, then drop columns from the end
         sep, legible = 2, 8

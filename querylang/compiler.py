@@ -151,6 +151,22 @@ class SqlBuilder:
             return self.col(a, "t_start" if e.name == "start" else "t_end")
         raise AssertionError(e)
 
+    def shown(self, e: ast.Expr, scope: Scope) -> str:
+        """A value for the hit table: like :meth:`expr`, but a difference of two times
+        (``duration``, ``gap``) comes out as the decimal it is, not with the binary noise of
+        the subtraction (1.628 - 0.902 is 0.7259999999999999 in binary floating point).
+
+        Conditions keep :meth:`expr`, so a query compares exactly what hand-written SQL does.
+        """
+        if isinstance(e, ast.Func) and e.name == "gap":
+            a, b = scope.aliases[e.a], scope.aliases[e.b]
+            return (f"(CASE WHEN {self.col(a, 'doc')} = {self.col(b, 'doc')} "
+                    f"THEN {decimal_difference(self.col(b, 't_start'), self.col(a, 't_end'))} END)")
+        if isinstance(e, ast.Ref) and e.kind == "time" and e.name == "duration":
+            a = scope.aliases[e.var]
+            return decimal_difference(self.col(a, "t_end"), self.col(a, "t_start"))
+        return self.expr(e, scope)
+
     def distance(self, a: str, b: str, la: LayerInfo, lb: LayerInfo, unit: str) -> str:
         same_doc = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
         if unit == "chars":
@@ -490,6 +506,25 @@ def kwic_layer(checked: Checked) -> LayerInfo | None:
     return None
 
 
+def decimal_difference(x: str, y: str) -> str:
+    """SQL for ``x - y`` rounded to the 15 significant digits of the larger operand.
+
+    Times are parsed from decimal text; a double keeps 15 significant decimal digits of such a
+    text (DBL_DIG, C standard <float.h>), and the representation and subtraction errors (at
+    most 3 x 2^-53 of the larger operand) stay below half a unit of its 15th digit, so the
+    rounded difference is the double nearest to the exact decimal difference and prints as
+    that decimal (3.0 - 1.814 -> 1.186, not 1.1859999999999999).  Times of 0 fall back to
+    nanosecond precision (the 1e-9 floor).
+    """
+    return (f"round({x} - {y}, CAST(14 - floor(log10(greatest(abs({x}), abs({y}), 1e-9))) AS INTEGER))")
+
+
+def one_line(sb: SqlBuilder, text_sql: str) -> str:
+    """SQL for the text with every line break (CRLF, LF, CR) made one space (bound parameters:
+    the SQL text holds no literal)."""
+    return f"regexp_replace({text_sql}, {sb.param(chr(13) + chr(10) + '|' + chr(13) + '|' + chr(10))}, {sb.param(' ')}, {sb.param('g')})"
+
+
 #: the largest LIMIT DuckDB takes (BIGINT); a larger one cannot change any result
 LIMIT_MAX = 2 ** 63 - 1
 
@@ -585,7 +620,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     elif isinstance(out, ast.Aggregate):
         items = list(out.by) + [out.expr]
     for k, item in enumerate(items):
-        select.append(f"{sb.expr(item.expr, main)} AS _x{k}")
+        select.append(f"{sb.shown(item.expr, main)} AS _x{k}")
     starts = [f"{sb.col(main.aliases[v], 'start')}" for v in variables]
     ends = [f"{sb.col(main.aliases[v], 'end')}" for v in variables]
     select.append(f"least({', '.join(starts)}) AS _hs" if len(starts) > 1 else f"{starts[0]} AS _hs")
@@ -712,9 +747,11 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
         ctes.append(f"x AS (SELECT l.*, {left_start} AS _ls, {right_end} AS _re FROM l {kw_joins})")
     else:
         ctes.append("x AS (SELECT l.*, l._hs AS _ls, l._he AS _re FROM l)")
-    cols += [f"substr({text0}, CAST(l._ls - {base0} + 1 AS BIGINT), CAST(l._hs - l._ls AS BIGINT))",
-             f"substr({text0}, CAST(l._hs - {base0} + 1 AS BIGINT), CAST(l._he - l._hs AS BIGINT))",
-             f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST(l._re - l._he AS BIGINT))"]
+    # the context columns are for reading: a line break in them (CRLF, LF or CR) is one space,
+    # so a hit is one line in every format; `v.text` keeps the text as it is
+    cols += [one_line(sb, f"substr({text0}, CAST(l._ls - {base0} + 1 AS BIGINT), CAST(l._hs - l._ls AS BIGINT))"),
+             one_line(sb, f"substr({text0}, CAST(l._hs - {base0} + 1 AS BIGINT), CAST(l._he - l._hs AS BIGINT))"),
+             one_line(sb, f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST(l._re - l._he AS BIGINT))")]
     names += ["left", "match", "right"]
     select_out = ", ".join(f"{c} AS c{k}" for k, c in enumerate(cols))
     sql = (f"{with_(ctes, bool(sb.walk_ctes))} SELECT {select_out} FROM x AS l {' '.join(joins)} "
