@@ -146,14 +146,16 @@ def query(
         raise StrataError("parquet output needs a file: add -o FILE")
     q = _query_text(text, file)
     hits = _open(corpus).query(q, limit=limit, context=context)
-    write_hits(hits, fmt, output)
+    write_hits(hits, fmt, output, limit)
 
 
-def write_hits(hits, format: str, output: Optional[Path]) -> None:
+def write_hits(hits, format: str, output: Optional[Path], limit: Optional[int] = None) -> None:
     """The screen table on stdout, or every hit in ``format`` to ``output`` (or stdout)."""
     writers = {"csv": hits.to_csv, "tsv": hits.to_tsv, "jsonl": hits.to_jsonl, "parquet": hits.to_parquet}
     if format == "table":
-        out.print(_escape(hits.render_table(width=out.width)), soft_wrap=True)
+        # with --limit the screen lists every hit asked for; without, the first 50 and a count
+        out.print(_escape(hits.render_table(width=out.width, max_rows=None if limit is not None else 50)),
+                  soft_wrap=True)
         return
     if output is None:
         with tempfile.TemporaryDirectory() as tmp:

@@ -20,7 +20,7 @@ import pyarrow as pa
 
 from engine.errors import StrataError
 from engine.results import Hits
-from querylang.ast import Query
+from querylang.ast import Query, Show
 from querylang.catalog import Catalog
 from querylang.compiler import DOCUMENTS_VIEW, ident
 from querylang.pipeline import Compilation, run_passes
@@ -126,7 +126,9 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
                           line=1, column=1) from None
     table = table.rename_columns(compiled.columns)
-    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds))
+    output = compiled.ast.output
+    shown = tuple(i.label for i in output.items) if isinstance(output, Show) else ()
+    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown)
 
 
 WINDOW_CANDIDATES_PER_HIT = 4   # rule of thumb: candidates of the most selective variable per wanted hit

@@ -45,3 +45,12 @@ def first_gum_document(tmp: Path):
     corpus = Corpus.create(tmp / "corpus")
     corpus.import_files([src], progress=False)
     return corpus, src
+
+
+def first_gum_sentences(root: Path, n: int) -> Path:
+    """A CoNLL-U file in ``root`` holding the first ``n`` sentences of the dev split."""
+    text = gum_file("dev").read_text(encoding="utf-8")
+    blocks = [b for b in text.split("\n\n") if b.strip()][:n]
+    source = root / "first.conllu"
+    source.write_text("\n\n".join(blocks) + "\n\n", encoding="utf-8")
+    return source

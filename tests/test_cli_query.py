@@ -19,7 +19,7 @@ import sys
 import pyarrow.parquet as pq
 import pytest
 
-from tests.conftest import gum_file
+from tests.conftest import first_gum_sentences
 
 SENTENCES = 60          # enough to hold a comma and a double-quote token (sentence 55 of dev)
 HOSTILE = "x'; DROP TABLE documents; --"
@@ -36,11 +36,8 @@ def strata(*args: str, stdin: str | None = None) -> subprocess.CompletedProcess:
 def small(tmp_path_factory):
     """(corpus path, Corpus) built with `strata init` and `strata import`."""
     from engine import Corpus
-    text = gum_file("dev").read_text(encoding="utf-8")
-    blocks = [b for b in text.split("\n\n") if b.strip()][:SENTENCES]
     root = tmp_path_factory.mktemp("cli-query")
-    source = root / "first.conllu"
-    source.write_text("\n\n".join(blocks) + "\n\n", encoding="utf-8")
+    source = first_gum_sentences(root, SENTENCES)
     path = root / "corpus"
     for args in (("init", str(path)), ("import", str(path), str(source))):
         done = strata(*args)
@@ -63,17 +60,27 @@ def cells(rows: list[dict], columns: list[str]) -> list[list[str]]:
 
 def test_table_on_stdout(small):
     path, corpus = small
-    done = strata("query", path, COMMAS)
+    done = strata("query", path, 'find t = token(upos = "NOUN")')
     assert done.returncode == 0, done.stderr
     lines = done.stdout.splitlines()
-    n = len(corpus.query(COMMAS))
-    assert lines[0].split()[:3] == ["left", "match", "right"]
-    assert set(lines[1].replace(" ", "")) == {"-"}
-    assert lines[-1] == f"({n} rows)" and n > 1
-    assert len(lines) == 2 + min(n, 50) + (n > 50) + 1        # header, rule, rows, "more", count
+    n = len(corpus.query('find t = token(upos = "NOUN")'))
+    assert n > 50 and lines[-1] == f"({n} hits)"
+    assert f"{n - 50} more hits; use -o FILE or --limit to get them all" in lines
+    assert any(line.startswith("not shown here: t.id") for line in lines)   # the columns only files hold
     # rich's console is 80 columns wide when stdout is not a terminal (its documented default,
     # quoted from memory)
     assert all(len(line) <= 80 for line in lines)
+
+
+def test_limit_lists_that_many_hits_on_screen(small):
+    path, corpus = small
+    done = strata("query", path, 'find t = token(upos = "NOUN")', "--limit", "70")
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.splitlines()[-1] == "(70 hits)" and "more hits" not in done.stdout
+    first70 = corpus.query('find t = token(upos = "NOUN")', limit=70).rows()
+    assert done.stdout.count("-- hit ") == 70 or len(done.stdout.splitlines()) >= 72
+    for r in first70:
+        assert r["sentence"] in done.stdout
 
 
 @pytest.mark.parametrize("query", [COMMAS, QUOTES])

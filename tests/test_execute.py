@@ -158,7 +158,9 @@ def test_compile_query_api(ferry):
     compiled = compile_query('find w = word(form = "ferry")', cat)
     assert compiled.ast.bindings[0].var == "w"
     assert "$1" in compiled.sql and compiled.params[0] == "ferry"
-    assert compiled.params[1:] == [4]          # context 5 words: 4 beyond the nearest one
+    assert compiled.params[1] == 4             # context 5 words: 4 beyond the nearest one
+    # then, for each of left, match and right: line breaks (CRLF, CR, LF) become one space
+    assert compiled.params[2:] == ["\r\n|\r|\n", " ", "g"] * 3
     assert compiled.kind == "hits"
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import csv
 import json
+import re
 from decimal import Decimal
 
 import pandas as pd
@@ -19,7 +20,7 @@ import pytest
 
 from engine import Corpus
 from engine.results import MISSING
-from tests.conftest import first_gum_document, gum_file
+from tests.conftest import first_gum_document, first_gum_sentences
 from tests.test_cli_query import strata
 
 SENTENCES = 60
@@ -29,13 +30,9 @@ GROUPED = "find t = token count by t.feats.Number, t.upos"        # many tokens 
 
 @pytest.fixture(scope="module")
 def small(tmp_path_factory):
-    text = gum_file("dev").read_text(encoding="utf-8")
-    blocks = [b for b in text.split("\n\n") if b.strip()][:SENTENCES]
     root = tmp_path_factory.mktemp("hit-files")
-    source = root / "first.conllu"
-    source.write_text("\n\n".join(blocks) + "\n\n", encoding="utf-8")
     corpus = Corpus.create(root / "corpus")
-    corpus.import_files([source], progress=False)
+    corpus.import_files([first_gum_sentences(root, SENTENCES)], progress=False)
     return corpus
 
 
@@ -192,3 +189,14 @@ def test_gaps_are_the_exact_decimal_differences(timed, tmp_path):
     want = [Decimal(b[0]) - Decimal(a[1]) for a, b in zip(times, times[1:])]
     assert [Decimal(repr(v)) for v in hits.to_arrow().column("gap(a, b)").to_pylist()] == want
 
+
+
+def test_the_screen_keeps_every_digit(timed):
+    corpus, times = timed
+    done = strata("query", str(corpus.path), TIMES)
+    assert done.returncode == 0, done.stderr
+    assert times[0][0] == "123456.789"
+    shown = set(re.findall(r"(?<![\d.])\d+\.\d+(?![\d.])", done.stdout))    # every decimal on screen
+    listed = times[:50]
+    assert {t for pair in listed for t in pair} <= shown     # each start and end, every digit
+    assert "123457" not in re.findall(r"(?<![\d.])\d+(?![\d.])", done.stdout)   # no rounded form
