@@ -124,6 +124,12 @@ class _Checker:
     # ---- references ------------------------------------------------------------
     def resolve_attr(self, var: str, layer: LayerInfo, parts: tuple[str, ...], pos: ast.Pos,
                      written: str) -> ast.Ref:
+        # a node's document is its name and its sentence its id, as the hit table shows them
+        # (the stored numbers behind them are internal)
+        if parts == ("doc",) and "name" in self.catalog.doc_attrs():
+            return self._extra(var, "doc", "name", self.catalog.doc_attrs(), pos, written)
+        if parts == ("sentence",) and "sent_id" in self.catalog.sentence_attrs():
+            return self._extra(var, "sentence", "sent_id", self.catalog.sentence_attrs(), pos, written)
         if len(parts) > 1 and parts[0] == "sentence":
             return self._extra(var, "sentence", ".".join(parts[1:]), self.catalog.sentence_attrs(), pos, written)
         if len(parts) > 1 and parts[0] == "doc":

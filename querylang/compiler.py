@@ -519,6 +519,12 @@ def decimal_difference(x: str, y: str) -> str:
     return (f"round({x} - {y}, CAST(14 - floor(log10(greatest(abs({x}), abs({y}), 1e-9))) AS INTEGER))")
 
 
+def place_columns(layer: LayerInfo) -> list[str]:
+    """Stored columns that say where a node is, beyond its document, sentence and characters:
+    its CoNLL-U ID (``cid``) where the layer has one, its time span where it has times."""
+    return (["cid"] if "cid" in layer.attrs else []) + (["t_start", "t_end"] if layer.time else [])
+
+
 def one_line(sb: SqlBuilder, text_sql: str) -> str:
     """SQL for the text with every line break (CRLF, LF, CR) made one space (bound parameters:
     the SQL text holds no literal)."""
@@ -596,6 +602,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     # select list of the match level
     select: list[str] = []
     variables = [b.var for b in q.bindings]
+    listing = not isinstance(q.output, (ast.Count, ast.Aggregate))
     if windowed:
         # every variable in the window's documents; a hit whose nodes all lack a start sorts
         # last in the full listing (NULL _hs), so no window may return it
@@ -611,6 +618,8 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
                    f"{sb.col(a, 'sent')} AS _sent{i}"]
         if checked.layers[v].readings:
             select.append(f"{sb.col(a, 'reading')} AS _read{i}")
+        if listing:   # where each node is, in the user's terms (see place_columns)
+            select += [f"{sb.col(a, c)} AS _{c}{i}" for c in place_columns(checked.layers[v])]
     out = q.output
     items: list[ast.ShowItem] = []
     if isinstance(out, ast.Show):
@@ -682,29 +691,35 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     names: list[str] = []
     joins: list[str] = []
     d = ident("documents")
-    joins.append(f"LEFT JOIN {d} AS t0 ON t0.{ident('doc')} = l._doc0")
-    cols.append(f"t0.{ident('name')}")
-    names.append("doc")
     sentence = checked.catalog.layers().get(SENTENCE_VIEW)
-    if sentence is not None and "sent_id" in sentence.attrs:
-        joins.append(f"LEFT JOIN {ident(SENTENCE_VIEW)} AS st ON st.{ident('id')} = l._sent0")
-        cols.append(f"st.{ident('sent_id')}")
-    else:
-        cols.append("l._sent0")
-    names.append("sentence")
+    sentence_ids = sentence is not None and "sent_id" in sentence.attrs
+    for i in range(len(variables)):
+        joins.append(f"LEFT JOIN {d} AS t{i} ON t{i}.{ident('doc')} = l._doc{i}")
+        if sentence_ids:
+            joins.append(f"LEFT JOIN {ident(SENTENCE_VIEW)} AS st{i} ON st{i}.{ident('id')} = l._sent{i}")
+    # the hit's place: the document and sentence of its first variable
+    cols += [f"t0.{ident('name')}", f"st0.{ident('sent_id')}" if sentence_ids else "CAST(NULL AS VARCHAR)"]
+    names += ["doc", "sentence"]
     for i, v in enumerate(variables):
-        t = f"t{i}"
-        if i > 0:
-            joins.append(f"LEFT JOIN {d} AS {t} ON {t}.{ident('doc')} = l._doc{i}")
+        t, layer = f"t{i}", checked.layers[v]
         base = f"{t}.{ident('base')}"
-        cols += [f"l._id{i}",
-                 f"substr({t}.{ident('text')}, CAST(l._start{i} - {base} + 1 AS BIGINT), "
+        cols += [f"{t}.{ident('name')}", f"st{i}.{ident('sent_id')}" if sentence_ids else "CAST(NULL AS VARCHAR)"]
+        names += [f"{v}.doc", f"{v}.sentence"]
+        if "cid" in place_columns(layer):
+            cols.append(f"l._cid{i}")
+            names.append(f"{v}.conllu_id")
+        cols += [f"substr({t}.{ident('text')}, CAST(l._start{i} - {base} + 1 AS BIGINT), "
                  f"CAST(l._end{i} - l._start{i} AS BIGINT))",
                  f"l._start{i} - {base}", f"l._end{i} - {base}"]
-        names += [f"{v}.id", f"{v}.text", f"{v}.char_start", f"{v}.char_end"]
-        if checked.layers[v].readings:
+        names += [f"{v}.text", f"{v}.char_start", f"{v}.char_end"]
+        if "t_start" in place_columns(layer):
+            cols += [f"l._t_start{i}", f"l._t_end{i}"]
+            names += [f"{v}.start", f"{v}.end"]
+        if layer.readings:
             cols.append(f"l._read{i}")
             names.append(f"{v}.reading")
+        cols.append(f"l._id{i}")
+        names.append(f"{v}.node")
     for k, item in enumerate(items):
         if item.label in names:          # e.g. "show a.text": already a column of the hit table
             continue

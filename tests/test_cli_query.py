@@ -66,7 +66,7 @@ def test_table_on_stdout(small):
     n = len(corpus.query('find t = token(upos = "NOUN")'))
     assert n > 50 and lines[-1] == f"({n} hits)"
     assert f"{n - 50} more hits; use -o FILE or --limit to get them all" in lines
-    assert any(line.startswith("not shown here: t.id") for line in lines)   # the columns only files hold
+    assert any(line.startswith("not shown here: t.doc") for line in lines)   # the columns only files hold
     # rich's console is 80 columns wide when stdout is not a terminal (its documented default,
     # quoted from memory)
     assert all(len(line) <= 80 for line in lines)

@@ -29,8 +29,9 @@ def rows(con, sql):
 def test_hit_table_columns_and_text(ferry):
     con, cat = ferry
     hits = run_query(con, cat, 'find w = word(form = "ferry") show w.sentence.speaker')
-    assert hits.columns == ["doc", "sentence", "w.id", "w.text", "w.char_start", "w.char_end",
-                            "w.sentence.speaker", "left", "match", "right"]
+    assert hits.columns == ["doc", "sentence", "w.doc", "w.sentence", "w.text", "w.char_start", "w.char_end",
+                            "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "match", "right"]
+    assert all(r["w.doc"] == r["doc"] and r["w.sentence"] == r["sentence"] for r in hits.rows())
     docs = {d["name"]: d["text"] for d in rows(con, "SELECT name, text FROM documents")}
     for r in hits.rows():
         assert docs[r["doc"]][r["w.char_start"]:r["w.char_end"]] == r["w.text"] == "ferry"
@@ -58,7 +59,7 @@ def test_document_order(ferry):
     con, cat = ferry
     hits = run_query(con, cat, "find w = word")
     ids = [r["id"] for r in rows(con, 'SELECT id FROM "word" ORDER BY start')]
-    assert hits.to_arrow().column("w.id").to_pylist() == ids
+    assert hits.to_arrow().column("w.node").to_pylist() == ids
 
 
 def test_limit_argument_and_clause_take_the_smaller(ferry):
@@ -101,7 +102,7 @@ def test_without_finds_heads_lacking_a_dependent(ferry):
     objects = {t["id"] for t in tokens if t["deprel"] == "obj"}
     has_obj = {e["dst"] for e in edges if e["src"] in objects}
     want = [t["id"] for t in tokens if t["upos"] == "VERB" and t["id"] not in has_obj]
-    assert sorted(hits.to_arrow().column("v.id").to_pylist()) == sorted(want)
+    assert sorted(hits.to_arrow().column("v.node").to_pylist()) == sorted(want)
     assert want   # the corpus has such verbs
 
 
@@ -113,7 +114,7 @@ def test_readings(ferry):
     # any reading: every (word, NP) pair by span
     anyr = run_query(con, cat, 'find w = word, np = phrase(label = "NP") where w inside np')
     want = {(w["id"], p["id"]) for w in words for p in nps if p["start"] <= w["start"] and w["end"] <= p["end"]}
-    assert {(r["w.id"], r["np.id"]) for r in anyr.rows()} == want
+    assert {(r["w.node"], r["np.node"]) for r in anyr.rows()} == want
     assert "np.reading" in anyr.columns
     # NP under VP holds in one reading only, so never "in every reading"
     under = run_query(con, cat, 'find np = phrase(label = "NP"), vp = phrase(label = "VP") where np under vp')
@@ -129,7 +130,7 @@ def test_readings(ferry):
     want_words = {w["id"] for w in words
                   if any(readings[s] == len({p["reading"] for p in nps if p["sent"] == s and
                                              p["start"] <= w["start"] and w["end"] <= p["end"]}) for s in readings)}
-    assert {r["w.id"] for r in every.rows()} == want_words
+    assert {r["w.node"] for r in every.rows()} == want_words
     # same reading: NP and S of one reading only
     same = run_query(con, cat, 'find np = phrase(label = "NP"), s = phrase(label = "S") '
                                'where np inside s in the same reading')

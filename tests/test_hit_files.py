@@ -200,3 +200,14 @@ def test_the_screen_keeps_every_digit(timed):
     listed = times[:50]
     assert {t for pair in listed for t in pair} <= shown     # each start and end, every digit
     assert "123457" not in re.findall(r"(?<![\d.])\d+(?![\d.])", done.stdout)   # no rounded form
+
+
+def test_a_listing_gives_each_timed_node_its_time_span(timed, tmp_path):
+    corpus, times = timed
+    out = tmp_path / "t.csv"
+    done = strata("query", str(corpus.path), "find w = words", "-o", str(out))
+    assert done.returncode == 0, done.stderr
+    with open(out, encoding="utf-8", newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert [(r["w.start"], r["w.end"]) for r in rows] == times
+    assert all(r["w.doc"] == r["doc"] and r["w.node"] for r in rows)

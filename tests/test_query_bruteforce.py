@@ -170,7 +170,7 @@ def allen(name: str, a: dict, b: dict, tol: float) -> bool:
 def pairs(c: Drawn, query: str) -> set[tuple[int, int]]:
     hits = run_query(c.con, c.catalog, query, context=0)
     t = hits.to_arrow()
-    return set(zip(t.column("a.id").to_pylist(), t.column("b.id").to_pylist()))
+    return set(zip(t.column("a.node").to_pylist(), t.column("b.node").to_pylist()))
 
 
 def expected(c: Drawn, la: str, lb: str, test) -> set[tuple[int, int]]:
@@ -228,7 +228,7 @@ def test_precedes_within_words(c, rel, n, la, lb):
 def test_distance_in_words_and_chars(c, n):
     hits = run_query(c.con, c.catalog, f"find a = chunk, b = mention where distance(a, b) >= {n} words "
                                        "allow cross product", context=0).to_arrow()
-    got = set(zip(hits.column("a.id").to_pylist(), hits.column("b.id").to_pylist()))
+    got = set(zip(hits.column("a.node").to_pylist(), hits.column("b.node").to_pylist()))
 
     def test(a, b):
         d = words_between(c, a, b)
@@ -236,7 +236,7 @@ def test_distance_in_words_and_chars(c, n):
     assert got == expected(c, "chunk", "mention", test)
     hits = run_query(c.con, c.catalog, f"find a = chunk, b = mention where distance(a, b) <= {n} chars", context=0)
     t = hits.to_arrow()
-    got = set(zip(t.column("a.id").to_pylist(), t.column("b.id").to_pylist()))
+    got = set(zip(t.column("a.node").to_pylist(), t.column("b.node").to_pylist()))
 
     def char_gap(a, b):
         first, second = (a, b) if a["start"] <= b["start"] else (b, a)
@@ -334,7 +334,7 @@ def test_allen_relations(c, tol, la, lb):
 def test_negation(c, la, lb):
     for rel in TEXT:
         hits = run_query(c.con, c.catalog, f"find a = {la} without b = {lb} where b {rel} a", context=0).to_arrow()
-        got = set(hits.column("a.id").to_pylist())
+        got = set(hits.column("a.node").to_pylist())
         want = {a["id"] for a in c.nodes[la] if not any(text_rel(c, rel, b, a) for b in c.nodes[lb])}
         assert got == want, rel
 
@@ -414,7 +414,7 @@ def check_condition(c, cond):
         n["text"] = doc_text[n["start"] - base:n["end"] - base]
     hits = run_query(c.con, c.catalog, f"find a = chunk({text})", context=0).to_arrow()
     want = {n["id"] for n in c.nodes["chunk"] if test(n) is True}
-    assert set(hits.column("a.id").to_pylist()) == want, text
+    assert set(hits.column("a.node").to_pylist()) == want, text
 
 
 def reachable_steps(edges: set[tuple[int, int]], start: int) -> dict[int, int]:

@@ -115,7 +115,7 @@ def test_dependency_through_edge_table_or_tree_columns(corpus):
     assert '"dep"' not in tree.sql and '"parent"' in tree.sql
     edges = {(s, d) for s, d in con.execute('SELECT src, dst FROM "dep" WHERE label = \'nsubj\'').fetchall()}
     hits = run_query(con, cat, 'find a = token, b = token where a depends on b as "nsubj"').to_arrow()
-    assert set(zip(hits.column("a.id").to_pylist(), hits.column("b.id").to_pylist())) == edges
+    assert set(zip(hits.column("a.node").to_pylist(), hits.column("b.node").to_pylist())) == edges
 
 
 def test_names_that_are_sql_keywords_stay_identifiers():
