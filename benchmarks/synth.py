@@ -116,7 +116,7 @@ _NEG_MWT = {"do": ("don't", "D OW1 N T"), "does": ("doesn't", "D AH1 Z AH0 N T")
 _CCONJS = [("and", "AH0 N D"), ("but", "B AH1 T"), ("or", "AO1 R")]
 _SCONJS = [("because", "B IH0 K AH1 Z"), ("when", "W EH1 N"), ("if", "IH1 F"), ("while", "W AY1 L")]
 _FILLERS = [("um", "AH1 M"), ("uh", "AH1")]
-SILENT_EVENTS = ["breath", "lipsmack"]
+SILENT_EVENTS = ["breath", "click"]
 """Events inside silent pauses (events tier only)."""
 VOICED_EVENTS = [("laughter", "{laugh}"), ("cough", "{cough}")]
 """Events between turns that an aligner also writes into the words tier, in braces."""

@@ -31,7 +31,7 @@ CLITICS = {"n't", "'m", "'s", "'ll", "'re", "'ve", "'d"}
 MWT_SURFACE = {("ca", "n't"): "can't", ("wo", "n't"): "won't"}
 PUNCT_TAGS = {",", ".", ":", "``", "''", "-LRB-", "-RRB-", "HYPH"}
 NO_SPACE_BEFORE = {",", ".", "?", "!", ":", ";"}
-EVENT_KINDS = {"laugh", "cough", "breath", "lipsmack"}
+EVENT_KINDS = {"laugh", "cough", "breath", "click"}
 AUX_LEMMAS = {"be", "have", "do", "will", "would", "can", "could", "shall", "should", "may", "might", "must"}
 FILLED_PAUSES = {"um", "uh"}
 DEMONSTRATIVES = {"that", "this", "these", "those", "all", "both"}
@@ -744,7 +744,7 @@ def tier_rows(call: script.Call, sents: list[Sentence], seed: int, cmu: dict) ->
                     rows.append((t, t + gap, "pauses", "sil", s.speaker, ""))
                 else:
                     gap = {"laugh": _ms(rng, 800, 0.3, 400, 1500), "cough": _ms(rng, 420, 0.2, 250, 700),
-                           "breath": _ms(rng, 350, 0.2, 200, 600), "lipsmack": _ms(rng, 120, 0.2, 60, 200)}[ev]
+                           "breath": _ms(rng, 350, 0.2, 200, 600), "click": _ms(rng, 120, 0.2, 60, 200)}[ev]
                     rows.append((t, t + gap, "words", "{" + ev + "}", s.speaker, ""))
                     rows.append((t, t + gap, "events", ev, s.speaker, ""))
                 t += gap

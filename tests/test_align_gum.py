@@ -19,7 +19,7 @@ import pytest
 from engine import Corpus
 from tests.conftest import gum_file
 
-EVENTS = ("laugh", "cough", "breath", "lipsmack")   # the event labels of formats.md
+EVENTS = ("laugh", "cough", "breath", "click")   # non-speech events an aligner writes in braces
 
 
 def _expected(path: Path) -> dict[str, list[tuple[str, int, int]]]:

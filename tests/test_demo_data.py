@@ -194,7 +194,7 @@ def test_tier_times_are_consistent(tiers: list[dict[str, str]]) -> None:
             assert not any(ws < pe and ps < we for ws, we in words)             # silence is not speech
         for p in (r for r in rows if r["tier"] == "phones"):
             assert any(ws <= float(p["start"]) and float(p["end"]) <= we for ws, we in words)
-        assert {r["label"] for r in rows if r["tier"] == "events"} <= {"laugh", "cough", "breath", "lipsmack"}
+        assert {r["label"] for r in rows if r["tier"] == "events"} <= {"laugh", "cough", "breath", "click"}
     assert {r["label"] for r in tiers if r["tier"] == "events"} >= {"laugh", "cough", "breath"}
 
 
