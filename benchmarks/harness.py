@@ -83,7 +83,7 @@ def load_suite(folder: Path = QUERIES) -> list[SuiteEntry]:
 
 def corpus_input(tokens: int, seed: int, work: Path) -> tuple[Path, dict]:
     """The synthetic input for a scale, generated once and reused while the manifest matches."""
-    folder = work / f"synth-{tokens}-s{seed}"
+    folder = work / f"synth-v{synth.LAYOUT}-{tokens}-s{seed}"
     manifest = folder / "manifest.json"
     if manifest.exists():
         m = json.loads(manifest.read_text(encoding="utf-8"))
@@ -123,7 +123,7 @@ def cached_corpus(tokens: int, seed: int, formats: list[str], work: Path, fresh:
     import is never reused.
     """
     folder, manifest = corpus_input(tokens, seed, work)
-    target = work / f"corpus-{tokens}-s{seed}-{'-'.join(sorted(formats))}"
+    target = work / f"corpus-v{synth.LAYOUT}-{tokens}-s{seed}-{'-'.join(sorted(formats))}"
     marker = target / IMPORT_MARKER
     if not fresh and marker.exists():
         done = json.loads(marker.read_text(encoding="utf-8"))

@@ -116,6 +116,9 @@ _NEG_MWT = {"do": ("don't", "D OW1 N T"), "does": ("doesn't", "D AH1 Z AH0 N T")
 _CCONJS = [("and", "AH0 N D"), ("but", "B AH1 T"), ("or", "AO1 R")]
 _SCONJS = [("because", "B IH0 K AH1 Z"), ("when", "W EH1 N"), ("if", "IH1 F"), ("while", "W AY1 L")]
 _FILLERS = [("um", "AH1 M"), ("uh", "AH1")]
+#: the layout of the generated files and the layer names they make; cached inputs and corpora
+#: of another layout are not reused (2: the aligned words' tier is `spoken`, events `click`)
+LAYOUT = 2
 SILENT_EVENTS = ["breath", "click"]
 """Events inside silent pauses (events tier only)."""
 VOICED_EVENTS = [("laughter", "{laugh}"), ("cough", "{cough}")]
@@ -734,7 +737,7 @@ class ShardWriter:
                 now = _ms(t)
                 phones.append(f"{doc}\tphones\t{prev}\t{now}\t{p}\t{spk}\n")
                 prev = now
-            words.append(f"{doc}\twords\t{w0}\t{prev}\t{label}\t{spk}\n")
+            words.append(f"{doc}\tspoken\t{w0}\t{prev}\t{label}\t{spk}\n")
         self.word_ord = base + len(surface)
         d = pause_ms[bits(12)] + 100
         pauses.append(f"{doc}\tpauses\t{_ms(t)}\t{_ms(t + d)}\tsil\t\n")
@@ -747,7 +750,7 @@ class ShardWriter:
             label, word = VOICED_EVENTS[bits(1)]
             e = t + 250 + bits(9)
             self.tier_events.append(f"{doc}\tevents\t{_ms(t)}\t{_ms(e)}\t{label}\t{spk}\n")
-            words.append(f"{doc}\twords\t{_ms(t)}\t{_ms(e)}\t{word}\t{spk}\n")
+            words.append(f"{doc}\tspoken\t{_ms(t)}\t{_ms(e)}\t{word}\t{spk}\n")
             t = e
         self.t = t
         for label, tok, group, kind in self.disfl:

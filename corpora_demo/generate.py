@@ -720,7 +720,7 @@ def _phone_ms(rng: random.Random, phone: str) -> int:
 
 
 def tier_rows(call: script.Call, sents: list[Sentence], seed: int, cmu: dict) -> list[list[str]]:
-    """words, phones, pauses and events rows (times in integer milliseconds, written as seconds)."""
+    """spoken (the aligned words), phones, pauses and events rows (times in integer milliseconds, written as seconds)."""
     rng = random.Random(seed)
     rows: list[tuple[int, int, str, str, str, str]] = []   # start, end, tier, label, speaker, pron
     t = 300
@@ -745,7 +745,7 @@ def tier_rows(call: script.Call, sents: list[Sentence], seed: int, cmu: dict) ->
                 else:
                     gap = {"laugh": _ms(rng, 800, 0.3, 400, 1500), "cough": _ms(rng, 420, 0.2, 250, 700),
                            "breath": _ms(rng, 350, 0.2, 200, 600), "click": _ms(rng, 120, 0.2, 60, 200)}[ev]
-                    rows.append((t, t + gap, "words", "{" + ev + "}", s.speaker, ""))
+                    rows.append((t, t + gap, "spoken", "{" + ev + "}", s.speaker, ""))
                     rows.append((t, t + gap, "events", ev, s.speaker, ""))
                 t += gap
             if not form or s.words[a].xpos in PUNCT_TAGS:
@@ -762,10 +762,10 @@ def tier_rows(call: script.Call, sents: list[Sentence], seed: int, cmu: dict) ->
                 d = _phone_ms(rng, ph)
                 rows.append((t, t + d, "phones", ph, s.speaker, source))
                 t += d
-            rows.append((start, t, "words", form.lower(), s.speaker, source))
+            rows.append((start, t, "spoken", form.lower(), s.speaker, source))
             first = False
             after_filled = s.words[a].lemma in FILLED_PAUSES and s.words[a].xpos == "UH"
-    order = {"words": 0, "phones": 1, "pauses": 2, "events": 3}
+    order = {"spoken": 0, "phones": 1, "pauses": 2, "events": 3}
     rows.sort(key=lambda r: (order[r[2]], r[0]))
     return [[call.doc, tier, f"{a / 1000:.3f}", f"{b / 1000:.3f}", label, spk, src] for a, b, tier, label, spk, src in rows]
 

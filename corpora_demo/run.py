@@ -60,7 +60,7 @@ SHOWCASE: list[tuple[str, str]] = [
      "show gap(a, p)"),
     ("Phones (aligner tier) of words wholly inside subject phrases (tree): mean phone "
      "duration in seconds by the speaker of the sentence.",
-     'find ph = phones, w = words, np = tree(label = "NP-SBJ", reading = 0)\n'
+     'find ph = phones, w = spoken, np = tree(label = "NP-SBJ", reading = 0)\n'
      "where ph inside w and w inside np\n"
      "mean(ph.duration) by np.sentence.speaker"),
     ("Filled pauses (disfluency spans, anchored on characters) followed at once by a silent "

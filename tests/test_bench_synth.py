@@ -223,10 +223,10 @@ def test_tiers_are_consistent_with_the_text(corpus, sentences):
     # Surface words without punctuation, as a forced aligner writes them.
     docs = {d: [t["form"] for t in ws if t["upos"] != "PUNCT"] for d, ws in _surface_words(sentences).items()}
     for doc, expected in docs.items():
-        words, phones = tiers[doc, "words"], tiers[doc, "phones"]
+        words, phones = tiers[doc, "spoken"], tiers[doc, "phones"]
         spoken = [w for w in words if not w[2].startswith("{")]
         assert [w for _, _, w in spoken] == expected
-        for name in ("words", "phones", "pauses", "events"):
+        for name in ("spoken", "phones", "pauses", "events"):
             spans = tiers[doc, name]
             assert all(a < b for a, b, _ in spans), (doc, name)
             assert all(spans[i][1] <= spans[i + 1][0] + 1e-9 for i in range(len(spans) - 1)), (doc, name)
@@ -253,7 +253,7 @@ def test_tiers_are_consistent_with_the_text(corpus, sentences):
             else:
                 assert any(pa <= a and b <= pb for pa, pb, _ in pauses)
         assert not in_words
-    assert any(w.startswith("{") for (_, name), spans in tiers.items() if name == "words"
+    assert any(w.startswith("{") for (_, name), spans in tiers.items() if name == "spoken"
                for _, _, w in spans)
 
 

@@ -167,7 +167,7 @@ def test_phones_are_first_cmu_pronunciations(tiers: list[dict[str, str]]) -> Non
     checked = 0
     for doc, rows in by_doc.items():
         phones = sorted((r for r in rows if r["tier"] == "phones"), key=lambda r: float(r["start"]))
-        for w in (r for r in rows if r["tier"] == "words" and not r["label"].startswith("{")):
+        for w in (r for r in rows if r["tier"] == "spoken" and not r["label"].startswith("{")):
             inside = [p["label"] for p in phones if float(w["start"]) <= float(p["start"]) and float(p["end"]) <= float(w["end"])]
             if w["pron"] == "hand":
                 assert w["label"] in script.HAND_PRONUNCIATIONS
@@ -185,7 +185,7 @@ def test_tier_times_are_consistent(tiers: list[dict[str, str]]) -> None:
         rows = [r for r in tiers if r["doc"] == doc]
         for r in rows:
             assert float(r["end"]) > float(r["start"]) >= 0
-        words = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "words")
+        words = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "spoken")
         pauses = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "pauses")
         for (_, e1), (s2, _) in zip(words, words[1:]):
             assert e1 <= s2                                                    # no overlap within words

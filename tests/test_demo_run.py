@@ -92,7 +92,7 @@ class Demo:
 
     def timed_words(self, doc: str) -> list[dict[str, str]]:
         """The aligner's words of one call without events like {laugh}, in time order."""
-        return [r for r in self.tier(doc, "words") if not r["label"].startswith("{")]
+        return [r for r in self.tier(doc, "spoken") if not r["label"].startswith("{")]
 
 
 def read_sentences(path: Path) -> tuple[list[Sentence], dict[str, str], dict[str, list[str]]]:

@@ -2,7 +2,7 @@
 
 
 def run(layers):
-    w = layers.read("words", ["doc", "t_end"])
+    w = layers.read("spoken", ["doc", "t_end"])
     p = layers.read("pauses", ["doc", "t_start"])
     pairs = w.merge(p, left_on=["doc", "t_end"], right_on=["doc", "t_start"])
     return [(len(pairs),)]

@@ -1,2 +1,2 @@
 -- Allen (1983) meets: end of the first equals start of the second, same recording.
-SELECT count(*) FROM words w JOIN pauses p ON p.doc = w.doc AND w.t_end = p.t_start
+SELECT count(*) FROM spoken w JOIN pauses p ON p.doc = w.doc AND w.t_end = p.t_start

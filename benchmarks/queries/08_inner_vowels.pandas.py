@@ -5,7 +5,7 @@ import pandas as pd
 
 def run(layers):
     p = layers.read("phones", ["label", "doc", "t_start", "t_end"])
-    w = layers.read("words", ["doc", "t_start", "t_end"])
+    w = layers.read("spoken", ["doc", "t_start", "t_end"])
     p = p[p.label == "AH0"].sort_values("t_start")
     w = w.dropna(subset=["t_start"]).sort_values("t_start")
     pairs = pd.merge_asof(p, w, on="t_start", by="doc", direction="backward",

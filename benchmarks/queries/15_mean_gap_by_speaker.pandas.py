@@ -2,7 +2,7 @@
 
 
 def run(layers):
-    w = layers.read("words", ["doc", "ord", "t_start", "t_end", "speaker"])
+    w = layers.read("spoken", ["doc", "ord", "t_start", "t_end", "speaker"])
     pairs = w.assign(next_ord=w.ord + 1).merge(w, left_on=["doc", "next_ord"], right_on=["doc", "ord"],
                                                suffixes=("_a", "_b"))
     pairs["gap"] = pairs.t_start_b - pairs.t_end_a

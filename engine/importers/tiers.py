@@ -35,7 +35,7 @@ FORMAT = "tiers"
 REQUIRED = ["doc", "tier", "start", "end", "label"]
 ALLOWED_RESERVED = {"start", "end", "doc"}
 #: Tiers holding the words a forced aligner wrote: aligned to the text.
-WORD_TIERS = ("words",)
+WORD_TIERS = ("spoken", "words")
 #: Tolerance for comparing times read from decimal text (well below a millisecond).
 EPS = 1e-9
 
