@@ -123,7 +123,7 @@ def _measure_strata(files: list[str], work: str) -> dict:
     corpus.import_files(files, format="conllu", progress=False)
     seconds = time.perf_counter() - t0
     con = corpus.connect()
-    n = con.execute('SELECT count(*) FROM "token"').fetchone()[0]
+    n = con.execute('SELECT count(*) FROM "word"').fetchone()[0]
     con.close()
     size = sum(p.stat().st_size for p in target.rglob("*") if p.is_file())
     return {"seconds": seconds, "tokens": n, "store_bytes": size, "pandas_import_s": pandas_import}

@@ -673,7 +673,7 @@ class ShardWriter:
         nospace = self.nospace
         lines = []
         text = []
-        # surface words: (label, phones, first token, last token, is punctuation)
+        # surface tokens: (label, phones, first token, last token, is punctuation)
         surface = []
         i = 0
         while i < n:
@@ -787,7 +787,7 @@ def manifest_files(n_shards: int) -> list[dict]:
                             ("synth.{}.trees", "brackets", {}),
                             ("synth.{}.tiers.tsv", "tiers", {}),
                             ("disfluency.{}.spans.tsv", "spans",
-                             {"anchor": "tokens:word", "layer": "disfluency"})]:
+                             {"anchor": "tokens:token", "layer": "disfluency"})]:
         for s in range(n_shards):
             files.append({"path": kind.format(f"{s:04d}"), "format": fmt, "options": opts})
     return files

@@ -12,7 +12,7 @@ closures are computed both ways and the pair sets must be identical:
   ``nx.descendants`` per node, and ``nx.transitive_closure`` as a second networkx variant.
 * ``depth 1..3``: the same with the shortest walk bounded (SQL CTE with a step counter;
   networkx ``single_source_shortest_path_length`` with a cutoff).
-* ``candidates``: a query-shaped case, `find a = token(upos = "PRON"), b = token where a
+* ``candidates``: a query-shaped case, `find a = word(upos = "PRON"), b = word where a
   under b via enhanced count` end to end, against networkx descendants of the candidates only
   (compared by the count).
 
@@ -41,7 +41,7 @@ from querylang.compiler import SqlBuilder, with_
 
 DEV_FILE = "en_gum-ud-dev.conllu"
 EDGE_SET = "enhanced"
-CANDIDATES = 'find a = token(upos = "PRON"), b = token where a under b via enhanced count'
+CANDIDATES = 'find a = word(upos = "PRON"), b = word where a under b via enhanced count'
 Pairs = set[tuple[int, int]]
 
 
@@ -74,7 +74,7 @@ def best(runs: int, fn: Callable[[], object]) -> tuple[float, object]:
 def closure_sql(corpus: Corpus, depth: tuple[int, int] | None) -> tuple[str, list[object]]:
     """The compiler's own closure CTE for the edge set, selected on its own."""
     mod = "" if depth is None else f" at depth {depth[0]}..{depth[1]}"
-    compiled = compile_query(f"find a = token, b = token where a under b via {EDGE_SET}{mod}", corpus.store)
+    compiled = compile_query(f"find a = word, b = word where a under b via {EDGE_SET}{mod}", corpus.store)
     sb = SqlBuilder(compiled.state.checked, compiled.state.plan)
     name = sb.closure(EDGE_SET, None, depth)
     return f'{with_(sb.walk_ctes, True)} SELECT "src", "dst" FROM {name}', sb.params
@@ -134,22 +134,22 @@ def benchmark(copies: int, runs: int, data: Path = DEFAULT_DATA) -> dict:
                  lambda sql=sql, params=params: pairs_of(con.execute(sql, params).fetchnumpy()),
                  {"descendants": lambda depth=depth: nx_descendants(con, depth)}
                  | ({"transitive_closure": lambda: nx_transitive(con)} if depth is None else {}))
-        pron = [r[0] for r in con.execute('SELECT "id" FROM "token" WHERE "upos" = \'PRON\'').fetchall()]
-        tokens = {r[0] for r in con.execute('SELECT "id" FROM "token"').fetchall()}
+        pron = [r[0] for r in con.execute('SELECT "id" FROM "word" WHERE "upos" = \'PRON\'').fetchall()]
+        words = {r[0] for r in con.execute('SELECT "id" FROM "word"').fetchall()}
 
         def candidates_sql() -> int:     # the whole query: parse, check, plan, SQL, count
             return corpus.query(CANDIDATES).rows()[0]["count"]
 
         def candidates_nx() -> int:
-            return sum(1 for _, b in nx_descendants(con, None, pron) if b in tokens)
+            return sum(1 for _, b in nx_descendants(con, None, pron) if b in words)
         case("candidates (PRON)", candidates_sql, {"descendants": candidates_nx})
-        n_tokens = len(tokens)
-    return {"copies": copies, "tokens": n_tokens, "edges": n_edges, "runs": runs, "rows": rows,
+        n_tokens = len(words)
+    return {"copies": copies, "words": n_tokens, "edges": n_edges, "runs": runs, "rows": rows,
             "faster": "sql" if all(r["nx_over_sql"] > 1 for r in rows) else "mixed"}
 
 
 def table(r: dict) -> str:
-    lines = [f"walks over `{EDGE_SET}`: GUM dev x{r['copies']} = {r['tokens']:,} tokens, {r['edges']:,} edges, "
+    lines = [f"walks over `{EDGE_SET}`: GUM dev x{r['copies']} = {r['words']:,} words, {r['edges']:,} edges, "
              f"best of {r['runs']}",
              f"{'case':<20} {'pairs':>9} {'SQL s':>8} {'networkx':<19} {'nx s':>8} {'nx/SQL':>7}"]
     for x in r["rows"]:

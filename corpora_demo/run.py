@@ -44,7 +44,7 @@ SHOWCASE: list[tuple[str, str]] = [
      "without d = tree where d under c and f inside d and not d same span as f\n"
      "count by f.sentence.speaker, c.cat"),
     ("Restarts and their repairs: a reparandum and the repair of the same group, and the "
-     "time from the end of one to the start of the other (from the word timings).",
+     "time from the end of one to the start of the other (from the spoken words' timings).",
      'find r = disfluency(label = "reparandum"), p = disfluency(label = "repair")\n'
      "where r.group = p.group and r precedes p\n"
      "show r.group, gap(r, p)"),
@@ -53,12 +53,12 @@ SHOWCASE: list[tuple[str, str]] = [
      'find pp_v = tree(cat = "PP"), vp = tree(cat = "VP"), pp_n = tree(cat = "PP"), np = tree(cat = "NP")\n'
      "where pp_v child of vp and pp_n child of np and pp_v same span as pp_n\n"
      "count by pp_v.sentence.sent_id, pp_v.text, pp_v.reading, pp_n.reading"),
-    ("Third-person pronouns (tokens) and the previous mention of their entity (coreference), "
+    ("Third-person pronouns (words) and the previous mention of their entity (coreference), "
      "with the seconds between the two on the recording.",
-     'find a = mention, p = mention, t = token(upos = "PRON", feats.Person = "3")\n'
+     'find a = mention, p = mention, t = word(upos = "PRON", feats.Person = "3")\n'
      "where a previous mention of p and t same span as p\n"
      "show gap(a, p)"),
-    ("Phones (aligner tier) of words wholly inside subject phrases (tree): mean phone "
+    ("Phones (aligner tier) of spoken words wholly inside subject phrases (tree): mean phone "
      "duration in seconds by the speaker of the sentence.",
      'find ph = phones, w = spoken, np = tree(label = "NP-SBJ", reading = 0)\n'
      "where ph inside w and w inside np\n"

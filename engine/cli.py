@@ -135,7 +135,7 @@ def query(
     output: Optional[Path] = typer.Option(None, "-o", "--output", help="file for every hit: .csv, .tsv, "
                                           ".jsonl or .parquet"),
     limit: Optional[int] = typer.Option(None, "--limit", help="at most this many hits"),
-    context: int = typer.Option(5, "--context", help="words of context left and right"),
+    context: int = typer.Option(5, "--context", help="surface tokens of context left and right"),
 ) -> None:
     """Run a query and print its hit table, or save every hit to a file."""
     from engine.output_files import check_writable, hit_format

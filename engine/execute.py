@@ -106,7 +106,7 @@ def _pretty_sql(sql: str) -> list[str]:
 def compile_query(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5) -> CompiledQuery:
     """Parse, check, plan and translate ``text``; raises StrataError on any mistake in it."""
     if context < 0:
-        raise StrataError("context must be 0 or more words")
+        raise StrataError("context must be 0 or more tokens")
     if limit is not None and limit < 0:
         raise StrataError("limit must not be negative")
     return CompiledQuery(text, run_passes(text, catalog, limit=limit, context=context))

@@ -11,7 +11,7 @@ in-memory DuckDB connection with one view per layer.
 >>> with s.batch("example") as b:
 ...     d = b.add_document("d1", "hi there")
 ...     ids = b.alloc_ids(2)
-...     b.write_nodes("token", "token", pa.table({"id": [ids, ids + 1], "doc": [d.doc] * 2,
+...     b.write_nodes("token", "sequence", pa.table({"id": [ids, ids + 1], "doc": [d.doc] * 2,
 ...         "start": [d.base, d.base + 3], "end": [d.base + 2, d.base + 8], "ord": [0, 1]}))
 >>> s.layer_rows("token")
 2
@@ -37,7 +37,9 @@ from engine import stats as part_statistics
 from engine.errors import StrataError
 from querylang.catalog import AttrInfo, LayerInfo
 
-SCHEMA_VERSION = "1"
+#: 2: the CoNLL-U layers carry the standard's names (``word`` the syntactic words, ``token`` the
+#: surface tokens; in 1 they were the other way round), and so do the ordinal columns
+SCHEMA_VERSION = "2"
 CATALOG_FILE = "catalog.duckdb"
 ROW_GROUP_SIZE = 122_880
 
@@ -143,8 +145,23 @@ class Store:
         if not (root / CATALOG_FILE).exists():
             raise StrataError(f"no corpus at {root} (make one with: strata init {root})")
         store = cls(root)
+        store._check_schema()
         shutil.rmtree(root / "staging", ignore_errors=True)  # leftovers of a killed import
         return store
+
+    def _check_schema(self) -> None:
+        """Refuse a corpus of another schema instead of misreading it (never changed here)."""
+        version = self.meta("schema_version")
+        if version == SCHEMA_VERSION:
+            return
+        if version == "1":
+            raise StrataError(
+                f"{self.root} was made by an older strata (schema 1), which named the CoNLL-U syntactic "
+                "words 'token' and the surface tokens 'word', the reverse of the standard; strata now "
+                "uses the standard's names. Import the same files into a new corpus: "
+                f"strata init NEW && strata import NEW FILE...; {self.root} is left as it is")
+        raise StrataError(f"{self.root} has corpus schema {version!r}, which this strata does not know "
+                          f"(it reads schema {SCHEMA_VERSION}); use the strata that made it")
 
     def catalog_connection(self, read_only: bool = True) -> duckdb.DuckDBPyConnection:
         if not read_only:

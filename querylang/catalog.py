@@ -25,14 +25,14 @@ class LayerInfo:
     """A layer of nodes, or an edge set (kind == "edges")."""
 
     name: str                 # also the name of its SQL view
-    kind: str                 # "token", "span", "tree", "edges"
+    kind: str                 # "sequence" (a segmentation: ord), "span", "tree", "edges"
     attrs: dict[str, AttrInfo] = field(default_factory=dict)
     rows: int = 0
     tree: bool = False        # has parent/depth/pre/post columns
     time: bool = False        # has t_start/t_end filled for (some) nodes
     readings: bool = False    # tree layer with alternative readings
-    token_layer: str | None = None   # layer whose ordinals tok_first/tok_last count
-    word_layer: str | None = None    # layer whose ordinals word_first/word_last count
+    token_layer: str | None = None   # layer whose ordinals tok_first/tok_last count (surface tokens)
+    word_layer: str | None = None    # layer whose ordinals word_first/word_last count (syntactic words)
     edge_sets: tuple[str, ...] = ()  # edge sets whose src/dst are nodes of this layer
     # ``sent`` holds the id of the node of this layer that the node lies inside (NULL: none known)
     sentence_layer: str | None = None

@@ -55,7 +55,7 @@ class Checked:
 def columns_of(layer: LayerInfo) -> dict[str, str]:
     """Every column a query may name on this layer, with its type."""
     cols = dict(ANCHOR_COLUMNS)
-    if layer.kind == "token":
+    if layer.kind == "sequence":
         cols["ord"] = "int"
     if layer.tree:
         cols.update(TREE_COLUMNS)
@@ -145,6 +145,11 @@ class _Checker:
             return ast.Ref(var, kind, name, typ, pos, written)
         hint = suggest(name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
                        | {"doc." + d for d in self.catalog.doc_attrs()})
+        elsewhere = sorted(n for n, info in self.catalog.layers().items() if name in info.attrs and info.rows)
+        if elsewhere:   # e.g. upos asked of surface tokens: it lives on the syntactic words
+            where = (f"layer {elsewhere[0]!r}" if len(elsewhere) == 1 else
+                     "layers " + ", ".join(repr(n) for n in elsewhere[:4]))
+            hint = f"{name!r} is an attribute of {where}" + ("" if not hint else f"; {hint}")
         self.fail(f"layer {layer.name!r} has no attribute {name!r}", pos, hint)
         raise AssertionError
 
@@ -487,21 +492,22 @@ def _written(expr: ast.Expr) -> str:
 def _ordinal_columns(layer: LayerInfo, unit: str) -> tuple[str, str] | None:
     """Columns holding a node's first/last ordinal counted in words or tokens (None if not counted)."""
     if unit == "words":
-        return ("word_first", "word_last") if layer.word_layer or layer.kind == "token" else None
-    return ("tok_first", "tok_last") if layer.token_layer or layer.kind == "token" else None
+        return ("word_first", "word_last") if layer.word_layer or layer.kind == "sequence" else None
+    return ("tok_first", "tok_last") if layer.token_layer or layer.kind == "sequence" else None
 
 
 def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
     """The token layer in which "directly precedes" is decided (None if the layers share none)."""
     def counted(layer: LayerInfo) -> set[str]:
         out = {x for x in (layer.token_layer, layer.word_layer) if x}
-        if layer.kind == "token":
+        if layer.kind == "sequence":
             out.add(layer.name)
         return out
-    if la.kind == "token" and la.name == lb.name:
+    if la.kind == "sequence" and la.name == lb.name:
         return la.name
     common = counted(la) & counted(lb)
-    for preferred in (la.token_layer, lb.token_layer, la.word_layer, lb.word_layer):
+    # syntactic words (the layers' word_layer) first: the finer sequence, where UD relations live
+    for preferred in (la.word_layer, lb.word_layer, la.token_layer, lb.token_layer):
         if preferred in common:
             return preferred
     return sorted(common)[0] if common else None

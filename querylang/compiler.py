@@ -60,7 +60,7 @@ def ordinals(layer: LayerInfo, unit: str) -> tuple[str, str]:
     """Columns of a node's first/last ordinal in words or tokens."""
     ref = layer.word_layer if unit == "words" else layer.token_layer
     if ref is None or ref == layer.name:
-        if layer.kind == "token":
+        if layer.kind == "sequence":
             return ("ord", "ord")
     return ("word_first", "word_last") if unit == "words" else ("tok_first", "tok_last")
 
@@ -497,11 +497,12 @@ def _reading_groups(checked: Checked) -> dict[str, list[str]]:
 
 
 def kwic_layer(checked: Checked) -> LayerInfo | None:
-    """The layer whose words make up the keyword-in-context columns."""
+    """The layer whose units make up the keyword-in-context columns: surface tokens first
+    (a contraction is one unit of context, as it is written)."""
     layers = checked.catalog.layers()
     first = next(iter(checked.layers.values()))
-    for name in (first.word_layer, first.token_layer, first.name if first.kind == "token" else None, "word"):
-        if name and name in layers and layers[name].kind == "token":
+    for name in (first.token_layer, first.word_layer, first.name if first.kind == "sequence" else None, "token"):
+        if name and name in layers and layers[name].kind == "sequence":
             return layers[name]
     return None
 

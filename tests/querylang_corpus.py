@@ -35,8 +35,8 @@ class LayerSpec:
     kind: str
     tree: bool = False
     readings: bool = False
-    token_layer: str | None = None
     word_layer: str | None = None
+    token_layer: str | None = None
     edge_sets: tuple[str, ...] = ()
     time: bool | None = None          # None: true when some node has a time span
     types: dict[str, str] = field(default_factory=dict)   # declared attributes (present even if unused)
@@ -92,7 +92,7 @@ class CorpusBuilder:
 
         ords: dict[str, dict[str, int]] = {}
         for name, spec in self.layers.items():
-            if spec.kind == "token":
+            if spec.kind == "sequence":
                 ords[name] = {n.key: i for i, n in enumerate(by_layer[name])}
 
         def covered(n: Node, layer: str | None) -> tuple[int | None, int | None]:
@@ -120,9 +120,9 @@ class CorpusBuilder:
         for name, spec in self.layers.items():
             rows = by_layer[name]
             cols: dict[str, list[Any]] = {c: [] for c in (
-                "id", "doc", "start", "end", "t_start", "t_end", "sent", "tok_first", "tok_last",
-                "word_first", "word_last")}
-            if spec.kind == "token":
+                "id", "doc", "start", "end", "t_start", "t_end", "sent", "word_first", "word_last",
+                "tok_first", "tok_last")}
+            if spec.kind == "sequence":
                 cols["ord"] = []
             tree = self._tree_columns(rows) if spec.tree else {}
             if spec.tree:
@@ -143,17 +143,17 @@ class CorpusBuilder:
                 cols[a] = []
             for n in rows:
                 s, e = g(n)
-                tf, tl = covered(n, spec.token_layer)
-                wf, wl = covered(n, spec.word_layer)
+                tf, tl = covered(n, spec.word_layer)
+                wf, wl = covered(n, spec.token_layer)
                 cols["id"].append(ids[n.key]); cols["doc"].append(n.doc)
                 cols["start"].append(s); cols["end"].append(e)
                 cols["t_start"].append(n.time[0] if n.time else None)
                 cols["t_end"].append(n.time[1] if n.time else None)
                 cols["sent"].append(None if n.key in self.stale else sentence_of(n) if name != "sentence"
                                     else ids[n.key])
-                cols["tok_first"].append(tf); cols["tok_last"].append(tl)
-                cols["word_first"].append(wf); cols["word_last"].append(wl)
-                if spec.kind == "token":
+                cols["word_first"].append(tf); cols["word_last"].append(tl)
+                cols["tok_first"].append(wf); cols["tok_last"].append(wl)
+                if spec.kind == "sequence":
                     cols["ord"].append(ords[name][n.key])
                 if spec.tree:
                     parent, depth, pre, post = tree[n.key]
@@ -184,7 +184,7 @@ class CorpusBuilder:
             layer_infos[name] = LayerInfo(
                 name, spec.kind, attrs, len(rows), tree=spec.tree,
                 time=spec.time if spec.time is not None else any(n.time for n in rows), readings=spec.readings,
-                token_layer=spec.token_layer, word_layer=spec.word_layer, edge_sets=spec.edge_sets,
+                word_layer=spec.word_layer, token_layer=spec.token_layer, edge_sets=spec.edge_sets,
                 sentence_layer=spec.sentence_layer, separate=spec.separate,
                 sent_missing=cols["sent"].count(None) if spec.count_missing else None)
         for set_name, edges in self.edges.items():
@@ -251,7 +251,7 @@ class CorpusBuilder:
 
 def add_sentence(b: CorpusBuilder, doc: int, text: str, offset: int, rows: list[tuple], *,
                  sent_id: str, speaker: str, t0: float = 0.0, step: float = 0.3) -> list[str]:
-    """Add one sentence: words split on spaces, each with (lemma, upos, deprel, head index).
+    """Add one sentence: tokens split on spaces, each with (lemma, upos, deprel, head index).
 
     ``rows[i] = (lemma, upos, deprel, head)`` with head 0 for the root, 1-based otherwise.
     Words get time stamps ``step`` seconds apart starting at ``t0``.
@@ -264,14 +264,14 @@ def add_sentence(b: CorpusBuilder, doc: int, text: str, offset: int, rows: list[
     for i, form in enumerate(forms):
         start, end = pos, pos + len(form)
         t = (t0 + step * i, t0 + step * i + step * 0.8)
-        b.node("word", doc, start, end, f"w{doc}.{start}", time=t, form=form)
+        b.node("token", doc, start, end, f"w{doc}.{start}", time=t, form=form)
         keys.append(f"t{doc}.{start}")
         pos = end + 1
     pos = offset
     for i, (form, (lemma, upos, deprel, head)) in enumerate(zip(forms, rows)):
         start, end = pos, pos + len(form)
         parent = keys[head - 1] if head else None
-        b.node("token", doc, start, end, keys[i], time=(t0 + step * i, t0 + step * i + step * 0.8),
+        b.node("word", doc, start, end, keys[i], time=(t0 + step * i, t0 + step * i + step * 0.8),
                parent=parent, form=form, lemma=lemma, upos=upos, deprel=deprel,
                **({"feats.Number": "Plur"} if form.endswith("s") and upos == "NOUN" else {}))
         if parent:
@@ -283,11 +283,11 @@ def add_sentence(b: CorpusBuilder, doc: int, text: str, offset: int, rows: list[
 def ferry_corpus() -> tuple[duckdb.DuckDBPyConnection, StaticCatalog]:
     """Two invented calls to the booking desk of a fictional island ferry line."""
     b = CorpusBuilder()
-    b.layer("word", "token", word_layer="word", token_layer="token")
-    b.layer("token", "token", tree=True, token_layer="token", word_layer="word", edge_sets=("dep",))
-    b.layer("sentence", "span", token_layer="token", word_layer="word")
-    b.layer("mention", "span", token_layer="token", word_layer="word")
-    b.layer("phrase", "tree", tree=True, readings=True, token_layer="token", word_layer="word")
+    b.layer("token", "sequence", token_layer="token", word_layer="word")
+    b.layer("word", "sequence", tree=True, word_layer="word", token_layer="token", edge_sets=("dep",))
+    b.layer("sentence", "span", word_layer="word", token_layer="token")
+    b.layer("mention", "span", word_layer="word", token_layer="token")
+    b.layer("phrase", "tree", tree=True, readings=True, word_layer="word", token_layer="token")
     s1 = "um when does the first ferry leave"
     s2 = "the first ferry leaves at seven"
     s3 = "can I book two seats on it"

@@ -1,10 +1,10 @@
-"""Alignment against the open treebank: re-tokenized words land on their own characters.
+"""Alignment against the open treebank: re-tokenized tokens land on their own characters.
 
 The sentences of ../shared/data/ud-english-gum (read in place) are imported as CoNLL-U.
-Then the test writes what a forced aligner would: one ``words`` row per surface token
-(multiword tokens whole, "don't"), punctuation (UPOS PUNCT) dropped, every word lower-
-or upper-cased, ``{laugh}``-style events inserted, with invented times. Every word must
-land on exactly the characters of the token it came from; those characters are
+Then the test writes what a forced aligner would: one ``spoken`` row per surface token
+(multiword tokens whole, "don't"), punctuation (UPOS PUNCT) dropped, every token lower-
+or upper-cased, ``{laugh}``-style events inserted, with invented times. Every token must
+land on exactly the characters of the word it came from; those characters are
 computed here from the ``conllu`` reference library's parse (forms and SpaceAfter=No,
 sentences joined by a newline: the text convention of DEVELOPERS.md), not by strata.
 """
@@ -52,31 +52,31 @@ def _expected(path: Path) -> dict[str, list[tuple[str, int, int]]]:
             docs.setdefault(name, []).append(toks)
     out = {}
     for name, sents in docs.items():
-        offset, words = 0, []
+        offset, tokens = 0, []
         for toks in sents:
             text_len = max((e for _, _, _, e in toks), default=0)
-            words += [(form, offset + s, offset + e) for form, upos, s, e in toks if upos != "PUNCT"]
+            tokens += [(form, offset + s, offset + e) for form, upos, s, e in toks if upos != "PUNCT"]
             offset += text_len + 1
-        out[name] = words
+        out[name] = tokens
     return out
 
 
 def _tiers_file(expected: dict, path: Path) -> dict[tuple[str, int], tuple[int, int]]:
-    """Write the re-tokenized words; returns (doc, row index) -> expected characters."""
+    """Write the re-tokenized tokens; returns (doc, row index) -> expected characters."""
     truth = {}
     with open(path, "w", encoding="utf-8", newline="") as f:
         w = csv.writer(f, delimiter="\t", lineterminator="\n")
         w.writerow(["doc", "tier", "start", "end", "label"])
-        for name, words in expected.items():
+        for name, tokens in expected.items():
             t = 0.0
             k = 0
-            for i, (form, s, e) in enumerate(words):
+            for i, (form, s, e) in enumerate(tokens):
                 if i % 23 == 7:
-                    w.writerow([name, "words", f"{t:.3f}", f"{t + 0.4:.3f}", "{" + EVENTS[i % 4] + "}"])
+                    w.writerow([name, "spoken", f"{t:.3f}", f"{t + 0.4:.3f}", "{" + EVENTS[i % 4] + "}"])
                     t += 0.4
                     k += 1
                 label = form.upper() if i % 5 == 0 else form.lower()
-                w.writerow([name, "words", f"{t:.3f}", f"{t + 0.25:.3f}", label])
+                w.writerow([name, "spoken", f"{t:.3f}", f"{t + 0.25:.3f}", label])
                 truth[(name, k)] = (s, e)
                 t += 0.25
                 k += 1
@@ -101,11 +101,11 @@ def test_every_word_lands_on_its_own_characters(gum_aligned):
     con = corpus.connect()
     rows = con.execute("""SELECT d.name, w.ord - min(w.ord) OVER (PARTITION BY w.doc), w.start - d.base,
                                  w."end" - d.base, w.align, w.label
-                          FROM words w JOIN documents d USING (doc)""").fetchall()
+                          FROM spoken w JOIN documents d USING (doc)""").fetchall()
     got = {(name, k): (s, e, cls, label) for name, k, s, e, cls, label in rows}
     assert len(got) == len(truth) + sum(1 for _, _, _, _, c, _ in rows if c == "event")
     wrong = [(key, truth[key], got[key]) for key in truth if got[key][:2] != truth[key]]
-    assert wrong == [], f"{len(wrong)} of {len(truth)} words misplaced, first: {wrong[:5]}"
+    assert wrong == [], f"{len(wrong)} of {len(truth)} tokens misplaced, first: {wrong[:5]}"
     classes = {got[key][2] for key in truth}
     assert classes <= {"exact", "normalised"}
 
@@ -114,7 +114,7 @@ def test_events_are_points_between_the_words(gum_aligned):
     corpus, truth = gum_aligned
     con = corpus.connect()
     rows = con.execute("""SELECT w.start, w."end", lag(w."end") OVER o, lead(w.start) OVER o, w.align
-                          FROM words w WINDOW o AS (PARTITION BY w.doc ORDER BY w.ord)""").fetchall()
+                          FROM spoken w WINDOW o AS (PARTITION BY w.doc ORDER BY w.ord)""").fetchall()
     events = [r for r in rows if r[4] == "event"]
     assert events
     for start, end, prev_end, next_start, _ in events:
@@ -124,15 +124,15 @@ def test_events_are_points_between_the_words(gum_aligned):
 
 
 def test_tokens_take_the_times_of_their_words(gum_aligned):
-    """A syntactic word inside a surface word ("do" in "don't") gets that word's times."""
+    """A syntactic word inside a surface token ("do" in "don't") gets that token's times."""
     corpus, _ = gum_aligned
     con = corpus.connect()
-    bad = con.execute("""SELECT count(*) FROM token t JOIN words w ON w.doc = t.doc AND w.start <= t.start
+    bad = con.execute("""SELECT count(*) FROM word t JOIN spoken w ON w.doc = t.doc AND w.start <= t.start
                            AND t."end" <= w."end" AND w.align IN ('exact', 'normalised')
                          WHERE t.t_start IS DISTINCT FROM w.t_start OR t.t_end IS DISTINCT FROM w.t_end"""
                       ).fetchone()[0]
     assert bad == 0
-    missing = con.execute("SELECT count(*) FROM token WHERE t_start IS NULL").fetchone()[0]
-    assert missing == 0       # punctuation too: a point at the end of the word before it
-    punct = con.execute("""SELECT count(*) FROM token WHERE upos = 'PUNCT' AND t_start <> t_end""").fetchone()[0]
+    missing = con.execute("SELECT count(*) FROM word WHERE t_start IS NULL").fetchone()[0]
+    assert missing == 0       # punctuation too: a point at the end of the token before it
+    punct = con.execute("""SELECT count(*) FROM word WHERE upos = 'PUNCT' AND t_start <> t_end""").fetchone()[0]
     assert punct == 0

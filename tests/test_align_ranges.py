@@ -2,7 +2,7 @@
 
 The SQL fills of ``engine.align.anchor`` are range joins; the numpy path must give the same
 values for every node, including nodes without a span, zero-width nodes, nodes between
-words and nodes at a document's edge. DuckDB (a general-purpose library) evaluates the join.
+tokens and nodes at a document's edge. DuckDB (a general-purpose library) evaluates the join.
 """
 from __future__ import annotations
 
@@ -99,13 +99,13 @@ def test_token_and_sentence_ranges_equal_the_join(seed: int) -> None:
 def test_time_transfer_equals_the_asof_join(seed: int) -> None:
     rng = np.random.default_rng(100 + seed)
     bounds: list = []
-    words = _segmentation(rng, 4, bounds)
+    tokens = _segmentation(rng, 4, bounds)
     nodes = _nodes(rng, 400, bounds)
     con = duckdb.connect()
-    con.register("w0", words)
+    con.register("w0", tokens)
     con.register("__n", nodes)
     want = _sql(con, _transfer_sql("__n", "w0", "start", '"end"', "t_start", "t_end", "1"))
-    ref = _ref(words, "start", "end", {"a": "t_start", "b": "t_end"})
+    ref = _ref(tokens, "start", "end", {"a": "t_start", "b": "t_end"})
     c = _columns(nodes)
     got = _transfer_arrays(ref, "start", "end", "a", "b", 1.0)({**c, "a": c["t_start"], "b": c["t_end"]})
     need = np.isnan(c["t_start"]) & ~np.isnan(c["start"])
@@ -116,7 +116,7 @@ def test_time_transfer_equals_the_asof_join(seed: int) -> None:
 
 
 def test_overlapping_reference_is_refused() -> None:
-    """Two word layers mixed (ends not non-decreasing by start): no range lookup, the join decides."""
+    """Two token layers mixed (ends not non-decreasing by start): no range lookup, the join decides."""
     doc = np.zeros(3)
     assert ranges.sorted_reference(doc, np.array([0.0, 1.0, 2.0]), np.array([5.0, 2.0, 3.0]), {}) is None
 

@@ -3,7 +3,7 @@
 The sentences of ../shared/data/ud-english-gum (dev, read in place) are joined by a newline into
 one text, as DEVELOPERS.md says documents are; the surface tokens of each sentence and their
 characters come from the ``conllu`` library's parse (form, then a space unless SpaceAfter=No).
-Sentences whose words are the text character for character take the no-edit-distance path;
+Sentences whose tokens are the text character for character take the no-edit-distance path;
 changed sentences (upper case, a dropped comma, a misspelling) take edlib's. Both must give the
 spans the reference says, and the same as one ``align_forms`` call per sentence.
 """

@@ -69,21 +69,21 @@ def test_suite_agrees_with_hand_written_sql_and_pandas(corpus):
 
 def test_a_wrong_reference_is_reported_as_a_difference(corpus, tmp_path):
     target, _, _ = corpus
-    (tmp_path / "x.query").write_text('find t = token(upos = "NOUN") count\n')
-    (tmp_path / "x.sql").write_text("SELECT count(*) + 1 FROM token WHERE upos = 'NOUN'\n")
+    (tmp_path / "x.query").write_text('find t = word(upos = "NOUN") count\n')
+    (tmp_path / "x.sql").write_text("SELECT count(*) + 1 FROM word WHERE upos = 'NOUN'\n")
     [r] = _records(target, harness.load_suite(tmp_path))
     assert r["status"] == "DIFFER" and set(r["differences"]) == {"hand_sql"}
 
 
 def test_a_wrong_pandas_script_is_reported_as_a_difference(corpus, tmp_path):
     target, _, _ = corpus
-    (tmp_path / "x.query").write_text('find t = token(upos = "NOUN") count\n')
-    (tmp_path / "x.sql").write_text("SELECT count(*) FROM token WHERE upos = 'NOUN'\n")
+    (tmp_path / "x.query").write_text('find t = word(upos = "NOUN") count\n')
+    (tmp_path / "x.sql").write_text("SELECT count(*) FROM word WHERE upos = 'NOUN'\n")
     (tmp_path / "x.pandas.py").write_text(
-        "def run(layers):\n    t = layers.read('token', ['upos'])\n    return [(int((t.upos == 'VERB').sum()),)]\n")
+        "def run(layers):\n    t = layers.read('word', ['upos'])\n    return [(int((t.upos == 'VERB').sum()),)]\n")
     [r] = _records(target, harness.load_suite(tmp_path))
     assert r["rows_equal"] is False and set(r["differences"]) == {"pandas"}
-    (tmp_path / "x.pandas.py").write_text("def run(layers):\n    return layers.read('token', ['no_such'])\n")
+    (tmp_path / "x.pandas.py").write_text("def run(layers):\n    return layers.read('word', ['no_such'])\n")
     [r] = _records(target, harness.load_suite(tmp_path))
     assert r["rows_equal"] is False and "pandas" in r["differences"]
 
@@ -97,14 +97,14 @@ def test_a_query_of_layers_not_imported_is_skipped(corpus):
 
 
 def test_a_query_without_its_sql_is_refused(tmp_path, capsys):
-    (tmp_path / "lonely.query").write_text("find t = token count\n")
+    (tmp_path / "lonely.query").write_text("find t = word count\n")
     assert harness.main(["--queries", str(tmp_path), "--work", str(tmp_path / "w")]) == 2
     assert "lonely.query: no hand-written lonely.sql" in capsys.readouterr().err
 
 
 def test_a_broken_pandas_script_is_refused_with_its_line(tmp_path, capsys):
-    (tmp_path / "x.query").write_text("find t = token count\n")
-    (tmp_path / "x.sql").write_text("SELECT count(*) FROM token\n")
+    (tmp_path / "x.query").write_text("find t = word count\n")
+    (tmp_path / "x.sql").write_text("SELECT count(*) FROM word\n")
     (tmp_path / "x.pandas.py").write_text("def run(layers):\n    return [(\n")
     assert harness.main(["--queries", str(tmp_path), "--work", str(tmp_path / "w")]) == 2
     assert re.search(r"x\.pandas\.py:\d+: syntax error", capsys.readouterr().err)
@@ -132,11 +132,11 @@ def test_summary_growth_exponent_is_one_for_linear_growth():
 
 
 def test_strip_output_leaves_the_hit_listing():
-    q = '# a comment\nfind a = words, b = words where a directly precedes b mean(gap(a, b)) by b.speaker\n'
-    assert baselines.strip_output(q) == "find a = words, b = words where a directly precedes b"
-    assert baselines.strip_output('find t = token(form ~ "#x") count by t.upos') == 'find t = token(form ~ "#x")'
-    assert baselines.strip_output("find t = token count") == "find t = token"
-    assert baselines.strip_output("find t = token show t.lemma") == "find t = token show t.lemma"
+    q = '# a comment\nfind a = spoken, b = spoken where a directly precedes b mean(gap(a, b)) by b.speaker\n'
+    assert baselines.strip_output(q) == "find a = spoken, b = spoken where a directly precedes b"
+    assert baselines.strip_output('find t = word(form ~ "#x") count by t.upos') == 'find t = word(form ~ "#x")'
+    assert baselines.strip_output("find t = word count") == "find t = word"
+    assert baselines.strip_output("find t = word show t.lemma") == "find t = word show t.lemma"
 
 
 def test_comparable_rows_ignore_order_engine_types_and_float_noise():

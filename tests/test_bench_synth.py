@@ -199,7 +199,7 @@ def _read_tsv(path: Path) -> list[dict]:
 
 
 def _surface_words(sentences) -> dict[str, list]:
-    """Per document, the surface words (the `word` layer): a multiword token once."""
+    """Per document, the surface tokens (the `token` layer): a multiword token once."""
     docs = defaultdict(list)
     for s in sentences:
         doc = s.metadata["sent_id"].rsplit("-", 1)[0]

@@ -21,7 +21,7 @@ import pytest
 
 from tests.conftest import first_gum_sentences
 
-SENTENCES = 60          # enough to hold a comma and a double-quote token (sentence 55 of dev)
+SENTENCES = 60          # enough to hold a comma and a double-quote word (sentence 55 of dev)
 HOSTILE = "x'; DROP TABLE documents; --"
 
 
@@ -45,8 +45,8 @@ def small(tmp_path_factory):
     return str(path), Corpus.open(path)
 
 
-COMMAS = 'find t = token(form = ",") show t.lemma'
-QUOTES = 'find t = token(form = "\\"") show t.lemma'
+COMMAS = 'find t = word(form = ",") show t.lemma'
+QUOTES = 'find t = word(form = "\\"") show t.lemma'
 
 
 def cells(rows: list[dict], columns: list[str]) -> list[list[str]]:
@@ -60,10 +60,10 @@ def cells(rows: list[dict], columns: list[str]) -> list[list[str]]:
 
 def test_table_on_stdout(small):
     path, corpus = small
-    done = strata("query", path, 'find t = token(upos = "NOUN")')
+    done = strata("query", path, 'find t = word(upos = "NOUN")')
     assert done.returncode == 0, done.stderr
     lines = done.stdout.splitlines()
-    n = len(corpus.query('find t = token(upos = "NOUN")'))
+    n = len(corpus.query('find t = word(upos = "NOUN")'))
     assert n > 50 and lines[-1] == f"({n} hits)"
     assert f"{n - 50} more hits; use -o FILE or --limit to get them all" in lines
     assert any(line.startswith("not shown here: t.doc") for line in lines)   # the columns only files hold
@@ -74,10 +74,10 @@ def test_table_on_stdout(small):
 
 def test_limit_lists_that_many_hits_on_screen(small):
     path, corpus = small
-    done = strata("query", path, 'find t = token(upos = "NOUN")', "--limit", "70")
+    done = strata("query", path, 'find t = word(upos = "NOUN")', "--limit", "70")
     assert done.returncode == 0, done.stderr
     assert done.stdout.splitlines()[-1] == "(70 hits)" and "more hits" not in done.stdout
-    first70 = corpus.query('find t = token(upos = "NOUN")', limit=70).rows()
+    first70 = corpus.query('find t = word(upos = "NOUN")', limit=70).rows()
     assert done.stdout.count("-- hit ") == 70 or len(done.stdout.splitlines()) >= 72
     for r in first70:
         assert r["sentence"] in done.stdout
@@ -130,7 +130,7 @@ def test_jsonl_file(small, tmp_path):
 def test_parquet_file_keeps_types(small, tmp_path):
     path, corpus = small
     out = tmp_path / "hits.parquet"
-    query = 'find t = token(upos = "NOUN") count by t.lemma'
+    query = 'find t = word(upos = "NOUN") count by t.lemma'
     done = strata("query", path, query, "--format", "parquet", "-o", str(out))
     assert done.returncode == 0, done.stderr
     table = pq.read_table(out)
@@ -147,34 +147,34 @@ def test_parquet_needs_a_file(small):
 def test_limit(small, tmp_path):
     path, corpus = small
     out = tmp_path / "hits.jsonl"
-    assert len(corpus.query("find w = word")) > 3
-    done = strata("query", path, "find w = word", "--limit", "3", "--format", "jsonl", "-o", str(out))
+    assert len(corpus.query("find w = token")) > 3
+    done = strata("query", path, "find w = token", "--limit", "3", "--format", "jsonl", "-o", str(out))
     assert done.returncode == 0, done.stderr
     got = [json.loads(line) for line in out.read_text(encoding="utf-8").splitlines()]
-    assert got == corpus.query("find w = word").rows()[:3]
+    assert got == corpus.query("find w = token").rows()[:3]
 
 
 @pytest.mark.parametrize("context", [0, 2])
 def test_context_is_that_many_surface_words(small, tmp_path, context):
-    """Left and right context reach exactly `context` surface words (the word layer) of the text."""
+    """Left and right context reach exactly `context` surface tokens (the token layer) of the text."""
     path, corpus = small
     out = tmp_path / "hits.jsonl"
-    done = strata("query", path, 'find t = token(upos = "NOUN")', "--context", str(context),
+    done = strata("query", path, 'find t = word(upos = "NOUN")', "--context", str(context),
                   "--format", "jsonl", "-o", str(out))
     assert done.returncode == 0, done.stderr
     con = corpus.connect()
     texts = dict(con.execute("SELECT name, text FROM documents").fetchall())
-    words: dict[str, list[tuple[int, int]]] = {}
-    for name, start, end in con.execute('SELECT d.name, w.start - d.base, w."end" - d.base FROM word w '
+    tokens: dict[str, list[tuple[int, int]]] = {}
+    for name, start, end in con.execute('SELECT d.name, w.start - d.base, w."end" - d.base FROM token w '
                                         "JOIN documents d USING (doc) ORDER BY w.start").fetchall():
-        words.setdefault(name, []).append((start, end))
+        tokens.setdefault(name, []).append((start, end))
     con.close()
     rows = [json.loads(line) for line in out.read_text(encoding="utf-8").splitlines()]
     assert rows
     for r in rows:
         text, start, end = texts[r["doc"]], r["t.char_start"], r["t.char_end"]
-        before = [w for w in words[r["doc"]] if w[1] <= start][-context:] if context else []
-        after = [w for w in words[r["doc"]] if w[0] >= end][:context]
+        before = [w for w in tokens[r["doc"]] if w[1] <= start][-context:] if context else []
+        after = [w for w in tokens[r["doc"]] if w[0] >= end][:context]
         assert r["left"] == one_line(text[before[0][0]:start] if before else "")
         assert r["right"] == one_line(text[end:after[-1][1]] if after else "")
         assert r["match"] == one_line(text[start:end])
@@ -189,7 +189,7 @@ def one_line(text: str) -> str:
 
 def test_query_from_file_and_from_stdin_equal_the_argument(small, tmp_path):
     path, _ = small
-    query = 'find t = token(form = ",")\n# a comment line\nshow t.lemma\n'
+    query = 'find t = word(form = ",")\n# a comment line\nshow t.lemma\n'
     by_arg = strata("query", path, query)
     file = tmp_path / "commas.query"
     file.write_text(query, encoding="utf-8")
@@ -217,16 +217,16 @@ def caret_column(stderr: str, query_line: str) -> int:
 
 
 def test_syntax_error_has_a_caret_under_the_column(small):
-    query = 'find w = word(form = "x") shw w.form'
+    query = 'find w = token(form = "x") shw w.form'
     done = strata("query", small[0], query)
     assert done.returncode == 2
     assert "Traceback" not in done.stderr and done.stdout == ""
     assert caret_column(done.stderr, query) == query.index("shw") + 1
-    assert "column 27" in done.stderr
+    assert "column 28" in done.stderr
 
 
 def test_syntax_error_on_a_later_line(small):
-    query = 'find w = word(form = "x")\n  shw w.form'
+    query = 'find w = token(form = "x")\n  shw w.form'
     done = strata("query", small[0], "-", stdin=query)
     assert done.returncode == 2 and "Traceback" not in done.stderr
     assert "line 2" in done.stderr
@@ -234,7 +234,7 @@ def test_syntax_error_on_a_later_line(small):
 
 
 def test_caret_under_a_long_query(small):
-    query = ('find t = token(upos = "NOUN", lemma = "language", form = "language"), s = sentence '
+    query = ('find t = word(upos = "NOUN", lemma = "language", form = "language"), s = sentence '
              'where t inside s shw t.form')
     done = strata("query", small[0], query)
     assert done.returncode == 2 and "Traceback" not in done.stderr
@@ -255,17 +255,17 @@ def test_unknown_layer_caret_under_the_name(small):
 
 
 def test_bad_regular_expression(small):
-    query = 'find t = token(form ~ "(")'
+    query = 'find t = word(form ~ "(")'
     done = strata("query", small[0], query)
     assert done.returncode == 2 and "Traceback" not in done.stderr
     assert caret_column(done.stderr, query) == query.index('"(') + 1
 
 
 @pytest.mark.parametrize("args, says", [
-    (["find t = token(lemmma = \"x\")"], "did you mean: lemma"),
-    (["find t = token", "--limit", "-1"], "limit must not be negative"),
-    (["find t = token", "--context", "-1"], "context must be 0 or more words"),
-    (["find t = token", "--format", "xml"], "unknown output format 'xml'"),
+    (["find t = word(lemmma = \"x\")"], "did you mean: lemma"),
+    (["find t = word", "--limit", "-1"], "limit must not be negative"),
+    (["find t = word", "--context", "-1"], "context must be 0 or more tokens"),
+    (["find t = word", "--format", "xml"], "unknown output format 'xml'"),
     ([""], "empty query"),
 ])
 def test_other_mistakes_are_user_errors(small, args, says):
@@ -275,10 +275,10 @@ def test_other_mistakes_are_user_errors(small, args, says):
 
 
 @pytest.mark.parametrize("query", [
-    f'find w = word(form = "{HOSTILE}")',
-    f'find w = word(form in ["{HOSTILE}", "y\\"); DROP TABLE documents; --"])',
-    f'find w = word(form ~ "^{HOSTILE}$")',
-    f'find w = word(form = "x") where w.form != "{HOSTILE}"',
+    f'find w = token(form = "{HOSTILE}")',
+    f'find w = token(form in ["{HOSTILE}", "y\\"); DROP TABLE documents; --"])',
+    f'find w = token(form ~ "^{HOSTILE}$")',
+    f'find w = token(form = "x") where w.form != "{HOSTILE}"',
 ])
 def test_hostile_strings_find_nothing_and_change_nothing(small, tmp_path, query):
     path, corpus = small
@@ -299,14 +299,14 @@ def test_hostile_strings_find_nothing_and_change_nothing(small, tmp_path, query)
 # ---- explain ---------------------------------------------------------------------------
 
 def test_explain_shows_sql_with_parameters_and_the_duckdb_plan(small):
-    query = f'find w = word(form = "{HOSTILE}") show w.sentence.sent_id'
+    query = f'find w = token(form = "{HOSTILE}") show w.sentence.sent_id'
     done = strata("explain", small[0], query)
     assert done.returncode == 0, done.stderr
     text = done.stdout
     sql = text.split("\nsql:\n")[1].split("\nparameters:\n")[0]
     params = text.split("\nparameters:\n")[1].split("\nduckdb plan:\n")[0]
     plan = text.split("\nduckdb plan:\n")[1]
-    assert "SELECT" in sql and '"word"' in sql
+    assert "SELECT" in sql and '"token"' in sql
     assert "DROP" not in sql and "$1" in sql                 # the value is bound, never in the SQL
     assert repr(HOSTILE) in params
     assert "could not plan" not in plan
@@ -335,7 +335,7 @@ def read_back(path, fmt: str) -> list[list[str]] | list[dict]:
 @pytest.mark.parametrize("fmt", ["csv", "tsv", "jsonl", "parquet"])
 def test_the_ending_picks_the_format_and_every_hit_is_written(small, tmp_path, fmt):
     path, corpus = small
-    query = "find w = word"
+    query = "find w = token"
     n = len(corpus.query(query))
     assert n > 50                                  # more than the screen table shows
     out = tmp_path / f"hits.{fmt.upper() if fmt == 'tsv' else fmt}"
@@ -402,11 +402,20 @@ def test_a_failed_query_leaves_an_older_file_as_it_was(small, tmp_path):
 def test_a_limit_past_the_corpus_or_past_64_bits_is_accepted(small, tmp_path, limit):
     """Larger than any corpus: every hit, by the option and by the query's own `limit`."""
     path, corpus = small
-    n = len(corpus.query("find w = word"))
-    for args in (["find w = word", "--limit", limit], [f"find w = word limit {limit}"]):
+    n = len(corpus.query("find w = token"))
+    for args in (["find w = token", "--limit", limit], [f"find w = token limit {limit}"]):
         out = tmp_path / "hits.jsonl"
         done = strata("query", path, *args, "-o", str(out))
         assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
         assert len(read_back(out, "jsonl")) == n
-    done = strata("query", path, "find w = word count", "--limit", limit)
+    done = strata("query", path, "find w = token count", "--limit", limit)
     assert done.returncode == 0 and str(n) in done.stdout
+
+
+def test_an_attribute_of_another_layer_says_where_it_lives(small):
+    """UPOS belongs to syntactic words (CoNLL-U), not to surface tokens."""
+    done = strata("query", small[0], 'find t = token(upos = "NOUN") count')
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert "layer 'token' has no attribute 'upos'" in done.stderr
+    hint = next(line for line in done.stderr.splitlines() if line.startswith("'upos' is an attribute of layer"))
+    assert "'word'" in hint                      # (and 'empty': empty nodes carry UPOS too)

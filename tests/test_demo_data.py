@@ -44,7 +44,7 @@ def test_generator_is_deterministic_and_matches_checked_in_files(tmp_path: Path)
 
 
 def _rebuilt_text(sent: conllu.TokenList) -> str:
-    """Surface tokens (multiword ranges, not their words) joined per SpaceAfter=No (CoNLL-U definition)."""
+    """Surface words (multiword ranges, not their tokens) joined per SpaceAfter=No (CoNLL-U definition)."""
     out, skip_to = [], 0
     for tok in sent:
         if isinstance(tok["id"], tuple) and tok["id"][1] == "-":
@@ -68,16 +68,16 @@ def test_conllu_text_equals_tokens_joined(sentences: list[conllu.TokenList]) -> 
 
 def test_conllu_dependencies_form_one_tree_per_sentence(sentences: list[conllu.TokenList]) -> None:
     for sent in sentences:
-        words = [t for t in sent if isinstance(t["id"], int)]
-        ids = {t["id"] for t in words}
-        assert [t["head"] for t in words].count(0) == 1, sent.metadata["sent_id"]
-        for t in words:
+        tokens = [t for t in sent if isinstance(t["id"], int)]
+        ids = {t["id"] for t in tokens}
+        assert [t["head"] for t in tokens].count(0) == 1, sent.metadata["sent_id"]
+        for t in tokens:
             seen, cur = set(), t
             while cur["head"] != 0:
                 assert cur["head"] in ids and cur["id"] not in seen, sent.metadata["sent_id"]
                 seen.add(cur["id"])
-                cur = next(w for w in words if w["id"] == cur["head"])
-        assert {t["deprel"] for t in words} <= UD_RELATIONS, sent.metadata["sent_id"]
+                cur = next(w for w in tokens if w["id"] == cur["head"])
+        assert {t["deprel"] for t in tokens} <= UD_RELATIONS, sent.metadata["sent_id"]
 
 
 # Universal Dependencies v2 relations and the English subtypes used here (universaldependencies.org/u/dep/).
@@ -147,10 +147,10 @@ def test_tree_leaves_equal_conllu_words(sentences: list[conllu.TokenList]) -> No
     trees = _trees_by_sentence()
     assert set(trees) == {s.metadata["sent_id"] for s in sentences}
     for s in sentences:
-        words = [t["form"] for t in s if isinstance(t["id"], int)]
+        tokens = [t["form"] for t in s if isinstance(t["id"], int)]
         for tree in trees[s.metadata["sent_id"]]:
             leaves = [w for w, tag in tree.pos() if tag != "-NONE-"]
-            assert leaves == words, s.metadata["sent_id"]
+            assert leaves == tokens, s.metadata["sent_id"]
     ambiguous = [k for k, v in trees.items() if len(v) > 1]
     assert len(ambiguous) >= 2
     for k in ambiguous:
@@ -185,15 +185,15 @@ def test_tier_times_are_consistent(tiers: list[dict[str, str]]) -> None:
         rows = [r for r in tiers if r["doc"] == doc]
         for r in rows:
             assert float(r["end"]) > float(r["start"]) >= 0
-        words = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "spoken")
+        tokens = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "spoken")
         pauses = sorted((float(r["start"]), float(r["end"])) for r in rows if r["tier"] == "pauses")
-        for (_, e1), (s2, _) in zip(words, words[1:]):
-            assert e1 <= s2                                                    # no overlap within words
+        for (_, e1), (s2, _) in zip(tokens, tokens[1:]):
+            assert e1 <= s2                                                    # no overlap within tokens
         for ps, pe in pauses:
             assert 0.15 <= round(pe - ps, 3) <= 1.5
-            assert not any(ws < pe and ps < we for ws, we in words)             # silence is not speech
+            assert not any(ws < pe and ps < we for ws, we in tokens)             # silence is not speech
         for p in (r for r in rows if r["tier"] == "phones"):
-            assert any(ws <= float(p["start"]) and float(p["end"]) <= we for ws, we in words)
+            assert any(ws <= float(p["start"]) and float(p["end"]) <= we for ws, we in tokens)
         assert {r["label"] for r in rows if r["tier"] == "events"} <= {"laugh", "cough", "breath", "click"}
     assert {r["label"] for r in tiers if r["tier"] == "events"} >= {"laugh", "cough", "breath"}
 

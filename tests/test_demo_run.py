@@ -44,10 +44,10 @@ def results(corpus) -> dict[str, object]:
     return {query: corpus.query(query) for _, query in SHOWCASE}
 
 
-def showcase(results: dict[str, object], words: str):
-    """The hit table of the one showcase whose query contains ``words``."""
-    found = [hits for query, hits in results.items() if words in query]
-    assert len(found) == 1, f"expected one showcase query containing {words!r}"
+def showcase(results: dict[str, object], tokens: str):
+    """The hit table of the one showcase whose query contains ``tokens``."""
+    found = [hits for query, hits in results.items() if tokens in query]
+    assert len(found) == 1, f"expected one showcase query containing {tokens!r}"
     return found[0]
 
 
@@ -58,9 +58,9 @@ class Sentence:
     doc: str
     sent_id: str
     speaker: str
-    words: list[str]                       # syntactic words (CoNLL-U integer ids), in order
-    spans: list[tuple[int, int]]           # each word's characters (see _part_spans)
-    surface: list[int]                     # each word's index among the doc's non-punctuation surface tokens, or -1
+    tokens: list[str]                       # syntactic words (CoNLL-U integer ids), in order
+    spans: list[tuple[int, int]]           # each token's characters (see _part_spans)
+    surface: list[int]                     # each token's index among the doc's non-punctuation surface tokens, or -1
     start: int = 0
     end: int = 0
 
@@ -80,7 +80,7 @@ class Demo:
         return found[0]
 
     def filled_pauses(self):
-        """(span row, its sentence, the index of the word it covers) for each filled_pause row."""
+        """(span row, its sentence, the index of the token it covers) for each filled_pause row."""
         for row in self.spans:
             if row["label"] == "filled_pause":
                 start, end = int(row["start"]), int(row["end"])
@@ -110,7 +110,7 @@ def read_sentences(path: Path) -> tuple[list[Sentence], dict[str, str], dict[str
             offsets[doc] += 1
         s = Sentence(doc, sent.metadata["sent_id"], sent.metadata.get("speaker", ""), [], [], [],
                      start=offsets[doc])
-        parts_of: dict[int, tuple[int, int, int]] = {}       # word id -> (start, end, surface index)
+        parts_of: dict[int, tuple[int, int, int]] = {}       # token id -> (start, end, surface index)
         pieces: list[str] = []
         pos = offsets[doc]
         last = None
@@ -137,7 +137,7 @@ def read_sentences(path: Path) -> tuple[list[Sentence], dict[str, str], dict[str
         for tok in sent:
             if isinstance(tok["id"], int):
                 start, end, index = parts_of[tok["id"]]
-                s.words.append(tok["form"])
+                s.tokens.append(tok["form"])
                 s.spans.append((start, end))
                 s.surface.append(index)
         s.end = pos
@@ -148,8 +148,8 @@ def read_sentences(path: Path) -> tuple[list[Sentence], dict[str, str], dict[str
 
 
 def _part_spans(sent: conllu.TokenList, ids: range, form: str, pos: int) -> list[tuple[int, int]]:
-    """Characters of each word of a surface token: "I'd" = "I" + "'d" when the words spell the
-    token (as in English contractions); otherwise every word gets the whole token."""
+    """Characters of each token of a surface token: "I'd" = "I" + "'d" when the tokens spell the
+    word (as in English contractions); otherwise every token gets the whole word."""
     forms = [t["form"] for t in sent if t["id"] in ids]
     if len(ids) == 1 or "".join(forms) != form:
         return [(pos, pos + len(form))] * len(ids)
@@ -197,21 +197,21 @@ def demo() -> Demo:
     for row in d.spans:
         assert d.texts[row["doc"]][int(row["start"]):int(row["end"])] == row["text"]
     # the aligner's words are the non-punctuation surface tokens, lower-cased (README), so
-    # the n-th of them is the n-th timed word
+    # the n-th of them is the n-th timed token
     for doc in d.texts:
         assert [w["label"] for w in d.timed_words(doc)] == [f.lower() for f in d.surface_forms[doc]]
     return d
 
 
 def word_leaves(tree: nltk.Tree) -> list[tuple[int, ...]]:
-    """Tree positions of the leaves that are words (not empty elements under -NONE-)."""
+    """Tree positions of the leaves that are tokens (not empty elements under -NONE-)."""
     return [p for p in tree.treepositions("leaves") if tree[p[:-1]].label() != "-NONE-"]
 
 
 def constituents(tree: nltk.Tree, sentence: Sentence):
-    """(label, parent label, first word, last word) of every constituent that covers a word."""
+    """(label, parent label, first token, last token) of every constituent that covers a token."""
     leaves = word_leaves(tree)
-    assert [tree[p] for p in leaves] == sentence.words, sentence.sent_id
+    assert [tree[p] for p in leaves] == sentence.tokens, sentence.sent_id
     for pos in tree.treepositions():
         node = tree[pos]
         if not isinstance(node, nltk.Tree) or node.label() == "-NONE-":
@@ -310,7 +310,7 @@ def test_restarts_and_repairs(results, demo):
 
 
 def _subject_word_starts(demo: Demo, doc: str) -> list[tuple[Sentence, int, int]]:
-    """(sentence, first word, last word) of every NP-SBJ in reading 0 of the call's trees."""
+    """(sentence, first token, last token) of every NP-SBJ in reading 0 of the call's trees."""
     out = []
     for s in demo.sentences:
         if s.doc != doc:
@@ -322,15 +322,15 @@ def _subject_word_starts(demo: Demo, doc: str) -> list[tuple[Sentence, int, int]
 
 
 def test_pauses_before_subject_phrases(results, demo):
-    """A pause row with a speaker whose end is the start time of the aligner's word that
+    """A pause row with a speaker whose end is the start time of the aligner's token that
     begins an NP-SBJ; the pause's start and length come from the tier table."""
     want = Counter()
     for doc in demo.texts:
-        words = demo.timed_words(doc)
+        tokens = demo.timed_words(doc)
         pauses = [p for p in demo.tier(doc, "pauses") if p["speaker"]]
         for s, first, _ in _subject_word_starts(demo, doc):
             assert s.surface[first] >= 0, "a subject never begins with punctuation"
-            begins = rounded(words[s.surface[first]]["start"])
+            begins = rounded(tokens[s.surface[first]]["start"])
             for p in pauses:
                 if rounded(p["end"]) == begins:
                     want[(doc, rounded(p["start"]), rounded(float(p["end"]) - float(p["start"])))] += 1
@@ -345,18 +345,18 @@ def test_phones_in_words_inside_subject_phrases(results, demo):
     NP-SBJ of reading 0: their count and mean duration by the sentence's speaker."""
     durations: dict[str, list[float]] = defaultdict(list)
     for doc in demo.texts:
-        words = demo.timed_words(doc)
+        tokens = demo.timed_words(doc)
         phones = demo.tier(doc, "phones")
         for s, first, last in _subject_word_starts(demo, doc):
             np_chars = (s.spans[first][0], s.spans[last][1])
-            words_of: dict[int, list[tuple[int, int]]] = defaultdict(list)   # surface token -> its words
+            words_of: dict[int, list[tuple[int, int]]] = defaultdict(list)   # surface token -> its tokens
             for k, index in enumerate(s.surface):
                 if index >= 0:
                     words_of[index].append(s.spans[k])
             inside = {i for i, spans in words_of.items()
                       if all(np_chars[0] <= a and b <= np_chars[1] for a, b in spans)}
             for w in inside:
-                ws, we = float(words[w]["start"]), float(words[w]["end"])
+                ws, we = float(tokens[w]["start"]), float(tokens[w]["end"])
                 durations[s.speaker] += [float(p["end"]) - float(p["start"]) for p in phones
                                          if ws <= float(p["start"]) and float(p["end"]) <= we]
     hits = showcase(results, "where ph inside w and w inside np")
@@ -365,13 +365,13 @@ def test_phones_in_words_inside_subject_phrases(results, demo):
 
 
 def test_silence_after_filled_pauses(results, demo):
-    """A pause row starting at the end time of the aligner's word that a filled_pause span covers."""
+    """A pause row starting at the end time of the aligner's token that a filled_pause span covers."""
     want = Counter()
     for row, s, k in demo.filled_pauses():
-        word = demo.timed_words(row["doc"])[s.surface[k]]
-        assert word["label"] == row["text"].lower()
+        token = demo.timed_words(row["doc"])[s.surface[k]]
+        assert token["label"] == row["text"].lower()
         for p in demo.tier(row["doc"], "pauses"):
-            if rounded(p["start"]) == rounded(word["end"]):
+            if rounded(p["start"]) == rounded(token["end"]):
                 want[(row["doc"], row["text"], rounded(float(p["end"]) - float(p["start"])))] += 1
     hits = showcase(results, "where f meets p")
     got = Counter((r["doc"], r["f.text"], rounded(r["p.duration"])) for r in hits.rows())

@@ -28,7 +28,7 @@ def rows(con, sql):
 
 def test_hit_table_columns_and_text(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, 'find w = word(form = "ferry") show w.sentence.speaker')
+    hits = run_query(con, cat, 'find w = token(form = "ferry") show w.sentence.speaker')
     assert hits.columns == ["doc", "sentence", "w.doc", "w.sentence", "w.text", "w.char_start", "w.char_end",
                             "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "match", "right"]
     assert all(r["w.doc"] == r["doc"] and r["w.sentence"] == r["sentence"] for r in hits.rows())
@@ -43,7 +43,7 @@ def test_hit_table_columns_and_text(ferry):
 def test_keyword_in_context_counts_words_and_joins_back_to_the_text(ferry, context):
     con, cat = ferry
     docs = {d["name"]: d["text"] for d in rows(con, "SELECT name, text FROM documents")}
-    hits = run_query(con, cat, "find w = word", context=context)
+    hits = run_query(con, cat, "find w = token", context=context)
     for r in hits.rows():
         text = docs[r["doc"]]
         start, end = r["w.char_start"], r["w.char_end"]
@@ -57,34 +57,34 @@ def test_keyword_in_context_counts_words_and_joins_back_to_the_text(ferry, conte
 
 def test_document_order(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, "find w = word")
-    ids = [r["id"] for r in rows(con, 'SELECT id FROM "word" ORDER BY start')]
+    hits = run_query(con, cat, "find w = token")
+    ids = [r["id"] for r in rows(con, 'SELECT id FROM "token" ORDER BY start')]
     assert hits.to_arrow().column("w.node").to_pylist() == ids
 
 
 def test_limit_argument_and_clause_take_the_smaller(ferry):
     con, cat = ferry
-    assert len(run_query(con, cat, "find w = word limit 4")) == 4
-    assert len(run_query(con, cat, "find w = word limit 4", limit=2)) == 2
-    assert len(run_query(con, cat, "find w = word limit 2", limit=9)) == 2
-    assert len(run_query(con, cat, "find w = word limit 0")) == 0
+    assert len(run_query(con, cat, "find w = token limit 4")) == 4
+    assert len(run_query(con, cat, "find w = token limit 4", limit=2)) == 2
+    assert len(run_query(con, cat, "find w = token limit 2", limit=9)) == 2
+    assert len(run_query(con, cat, "find w = token limit 0")) == 0
 
 
 def test_count_by_sorted_by_frequency_then_key(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, "find t = token count by t.upos")
+    hits = run_query(con, cat, "find t = word count by t.upos")
     got = [(r["t.upos"], r["count"]) for r in hits.rows()]
-    counts = Counter(r["upos"] for r in rows(con, 'SELECT upos FROM "token"'))
+    counts = Counter(r["upos"] for r in rows(con, 'SELECT upos FROM "word"'))
     assert got == sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
-    total = run_query(con, cat, "find t = token count").rows()
+    total = run_query(con, cat, "find t = word count").rows()
     assert total == [{"count": sum(counts.values())}]
 
 
 def test_numeric_aggregates(ferry):
     con, cat = ferry
-    data = rows(con, 'SELECT form, t_end - t_start AS d FROM "word"')
+    data = rows(con, 'SELECT form, t_end - t_start AS d FROM "token"')
     for func, ref in (("mean", lambda v: sum(v) / len(v)), ("min", min), ("max", max), ("sum", sum)):
-        hits = run_query(con, cat, f"find w = word {func}(w.duration) by w.form")
+        hits = run_query(con, cat, f"find w = token {func}(w.duration) by w.form")
         by_form: dict[str, list[float]] = {}
         for r in data:
             by_form.setdefault(r["form"], []).append(r["d"])
@@ -95,13 +95,13 @@ def test_numeric_aggregates(ferry):
 
 def test_without_finds_heads_lacking_a_dependent(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, 'find v = token(upos = "VERB") '
-                               'without o = token(deprel = "obj") where o depends on v show v.form')
-    tokens = rows(con, 'SELECT id, upos, deprel FROM "token"')
+    hits = run_query(con, cat, 'find v = word(upos = "VERB") '
+                               'without o = word(deprel = "obj") where o depends on v show v.form')
+    words = rows(con, 'SELECT id, upos, deprel FROM "word"')
     edges = rows(con, 'SELECT src, dst FROM "dep"')
-    objects = {t["id"] for t in tokens if t["deprel"] == "obj"}
+    objects = {t["id"] for t in words if t["deprel"] == "obj"}
     has_obj = {e["dst"] for e in edges if e["src"] in objects}
-    want = [t["id"] for t in tokens if t["upos"] == "VERB" and t["id"] not in has_obj]
+    want = [t["id"] for t in words if t["upos"] == "VERB" and t["id"] not in has_obj]
     assert sorted(hits.to_arrow().column("v.node").to_pylist()) == sorted(want)
     assert want   # the corpus has such verbs
 
@@ -109,11 +109,11 @@ def test_without_finds_heads_lacking_a_dependent(ferry):
 def test_readings(ferry):
     con, cat = ferry
     phrases = rows(con, 'SELECT id, sent, reading, label, start, "end", pre, post FROM "phrase"')
-    words = rows(con, 'SELECT id, start, "end" FROM "word"')
+    tokens = rows(con, 'SELECT id, start, "end" FROM "token"')
     nps = [p for p in phrases if p["label"] == "NP"]
-    # any reading: every (word, NP) pair by span
-    anyr = run_query(con, cat, 'find w = word, np = phrase(label = "NP") where w inside np')
-    want = {(w["id"], p["id"]) for w in words for p in nps if p["start"] <= w["start"] and w["end"] <= p["end"]}
+    # any reading: every (token, NP) pair by span
+    anyr = run_query(con, cat, 'find w = token, np = phrase(label = "NP") where w inside np')
+    want = {(w["id"], p["id"]) for w in tokens for p in nps if p["start"] <= w["start"] and w["end"] <= p["end"]}
     assert {(r["w.node"], r["np.node"]) for r in anyr.rows()} == want
     assert "np.reading" in anyr.columns
     # NP under VP holds in one reading only, so never "in every reading"
@@ -122,12 +122,12 @@ def test_readings(ferry):
     every = run_query(con, cat, 'find np = phrase(label = "NP"), vp = phrase(label = "VP") '
                                 'where np under vp in every reading')
     assert len(every) == 0
-    # a word inside an NP in every reading of its sentence
+    # a token inside an NP in every reading of its sentence
     readings = Counter()
     for sent in {p["sent"] for p in phrases}:
         readings[sent] = len({p["reading"] for p in phrases if p["sent"] == sent})
-    every = run_query(con, cat, 'find w = word, np = phrase(label = "NP") where w inside np in every reading')
-    want_words = {w["id"] for w in words
+    every = run_query(con, cat, 'find w = token, np = phrase(label = "NP") where w inside np in every reading')
+    want_words = {w["id"] for w in tokens
                   if any(readings[s] == len({p["reading"] for p in nps if p["sent"] == s and
                                              p["start"] <= w["start"] and w["end"] <= p["end"]}) for s in readings)}
     assert {r["w.node"] for r in every.rows()} == want_words
@@ -141,7 +141,7 @@ def test_readings(ferry):
 
 def test_doc_and_sentence_attributes(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, 'find t = token(doc.genre = "timetable", sentence.speaker = "agent") show t.doc.genre')
+    hits = run_query(con, cat, 'find t = word(doc.genre = "timetable", sentence.speaker = "agent") show t.doc.genre')
     assert {r["doc"] for r in hits.rows()} == {"call-02"}
     assert {r["t.doc.genre"] for r in hits.rows()} == {"timetable"}
 
@@ -150,16 +150,16 @@ def test_regex_the_engine_refuses_is_a_user_error(ferry):
     con, cat = ferry
     # Python's re accepts look-ahead; DuckDB's RE2 does not: still a StrataError, not a traceback
     with pytest.raises(StrataError) as info:
-        run_query(con, cat, 'find w = word(form matches "f(?=e)")')
+        run_query(con, cat, 'find w = token(form matches "f(?=e)")')
     assert info.value.query is not None
 
 
 def test_compile_query_api(ferry):
     _, cat = ferry
-    compiled = compile_query('find w = word(form = "ferry")', cat)
+    compiled = compile_query('find w = token(form = "ferry")', cat)
     assert compiled.ast.bindings[0].var == "w"
     assert "$1" in compiled.sql and compiled.params[0] == "ferry"
-    assert compiled.params[1] == 4             # context 5 words: 4 beyond the nearest one
+    assert compiled.params[1] == 4             # context 5 tokens: 4 beyond the nearest one
     # then, for each of left, match and right: line breaks (CRLF, CR, LF) become one space
     assert compiled.params[2:] == ["\r\n|\r|\n", " ", "g"] * 3
     assert compiled.kind == "hits"
@@ -190,7 +190,7 @@ def test_gum_pronoun_subjects_of_verbs_by_lemma(gum):
             head = by_id.get(t["head"])
             if t["deprel"] == "nsubj" and t["upos"] == "PRON" and head and head["upos"] == "VERB":
                 want[head["lemma"]] += 1
-    hits = corpus.query('find s = token(deprel = "nsubj", upos = "PRON"), v = token(upos = "VERB") '
+    hits = corpus.query('find s = word(deprel = "nsubj", upos = "PRON"), v = word(upos = "VERB") '
                         'where s depends on v count by v.lemma')
     got = [(r["v.lemma"], r["count"]) for r in hits.rows()]
     assert got == sorted(want.items(), key=lambda kv: (-kv[1], kv[0]))
@@ -200,10 +200,10 @@ def test_gum_verbs_without_subject(gum):
     corpus, sentences = gum
     want = 0
     for s in sentences:
-        words = syntactic_words(s)
-        with_subj = {t["head"] for t in words if t["deprel"] == "nsubj"}
-        want += sum(1 for t in words if t["upos"] == "VERB" and t["id"] not in with_subj)
-    hits = corpus.query('find v = token(upos = "VERB") without s = token(deprel = "nsubj") '
+        tokens = syntactic_words(s)
+        with_subj = {t["head"] for t in tokens if t["deprel"] == "nsubj"}
+        want += sum(1 for t in tokens if t["upos"] == "VERB" and t["id"] not in with_subj)
+    hits = corpus.query('find v = word(upos = "VERB") without s = word(deprel = "nsubj") '
                         'where s depends on v count')
     assert hits.rows() == [{"count": want}]
 
@@ -212,9 +212,9 @@ def test_gum_determiner_directly_before_noun(gum):
     corpus, sentences = gum
     want = 0
     for s in sentences:
-        words = syntactic_words(s)
-        want += sum(1 for a, b in zip(words, words[1:]) if a["upos"] == "DET" and b["upos"] == "NOUN")
-    hits = corpus.query('find a = token(upos = "DET"), b = token(upos = "NOUN") '
+        tokens = syntactic_words(s)
+        want += sum(1 for a, b in zip(tokens, tokens[1:]) if a["upos"] == "DET" and b["upos"] == "NOUN")
+    hits = corpus.query('find a = word(upos = "DET"), b = word(upos = "NOUN") '
                         'where a directly precedes b and a.sent = b.sent count')
     assert hits.rows() == [{"count": want}]
 
@@ -231,8 +231,8 @@ def test_gum_ancestry_and_depth(gum):
                 cur = by_id[cur]["head"]
             pairs_any += len(chain)
             pairs_two += 1 if len(chain) >= 2 else 0
-    assert corpus.query("find a = token, b = token where a under b count").rows() == [{"count": pairs_any}]
-    assert corpus.query("find a = token, b = token where a under b at depth 2 count").rows() == [{"count": pairs_two}]
+    assert corpus.query("find a = word, b = word where a under b count").rows() == [{"count": pairs_any}]
+    assert corpus.query("find a = word, b = word where a under b at depth 2 count").rows() == [{"count": pairs_two}]
 
 
 def test_gum_plural_nouns_by_genre(gum):
@@ -242,7 +242,7 @@ def test_gum_plural_nouns_by_genre(gum):
         genre = s.metadata.get("meta::genre", genre)
         want[genre] += sum(1 for t in syntactic_words(s)
                            if t["upos"] == "NOUN" and (t["feats"] or {}).get("Number") == "Plur")
-    hits = corpus.query('find t = token(upos = "NOUN", feats.Number = "Plur") count by t.doc.genre')
+    hits = corpus.query('find t = word(upos = "NOUN", feats.Number = "Plur") count by t.doc.genre')
     assert {r["t.doc.genre"]: r["count"] for r in hits.rows()} == {k: v for k, v in want.items() if v}
 
 
@@ -257,15 +257,15 @@ def test_gum_surface_forms_with_context(gum):
                 want += t["form"].lower() == "uh"
             elif isinstance(t["id"], int) and t["id"] not in covered:
                 want += t["form"].lower() == "uh"
-    hits = corpus.query('find w = word(form matches "(?i)^uh$")', context=3)
+    hits = corpus.query('find w = token(form matches "(?i)^uh$")', context=3)
     assert len(hits) == want > 0
     assert all(r["match"].lower() == "uh" for r in hits.rows())
 
 
 def test_limited_listing_is_the_head_of_the_full_listing(gum_corpora):
-    """With a limit, context words are looked up among the hits' documents only; same rows."""
+    """With a limit, context tokens are looked up among the hits' documents only; same rows."""
     corpus, _, _ = gum_corpora["dev"]
-    for query in ('find t = token(upos = "VERB")',
+    for query in ('find t = word(upos = "VERB")',
                   'find m = mention(type = "person"), s = sentence where m inside s'):
         full = corpus.query(query, context=3).rows()
         head = corpus.query(query, limit=20, context=3).rows()

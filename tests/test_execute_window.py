@@ -11,20 +11,20 @@ from engine.execute import compile_query, run_query
 from tests.querylang_corpus import ferry_corpus
 
 DOCUMENT_LOCAL = [
-    'find t = token(upos = "VERB")',
+    'find t = word(upos = "VERB")',
     'find m = mention, s = sentence where m inside s',
-    'find a = token(upos = "ADJ"), n = token(upos = "NOUN") where a directly precedes n',
-    'find d = token(deprel = "amod"), h = token where d depends on h',
-    'find d = token, h = token(upos = "VERB") where d child of h and d.upos = "PRON"',
-    'find s = sentence without t = token(upos = "AUX") where t inside s',
-    'find f = token(upos = "INTJ"), n = token(upos = "NOUN") where f precedes n within 3 words',
-    'find a = token(upos = "NUM"), b = token(upos = "NOUN"), s = sentence where a precedes b and b inside s',
+    'find a = word(upos = "ADJ"), n = word(upos = "NOUN") where a directly precedes n',
+    'find d = word(deprel = "amod"), h = word where d depends on h',
+    'find d = word, h = word(upos = "VERB") where d child of h and d.upos = "PRON"',
+    'find s = sentence without t = word(upos = "AUX") where t inside s',
+    'find f = word(upos = "INTJ"), n = word(upos = "NOUN") where f precedes n within 3 tokens',
+    'find a = word(upos = "NUM"), b = word(upos = "NOUN"), s = sentence where a precedes b and b inside s',
 ]
 NOT_LOCAL = [
     # coreference chains are an ordinary column: no promise that a chain stays in one document
     'find a = mention, b = mention where a previous mention of b',
     # a relation under "or" ties nothing
-    'find a = token(upos = "ADJ"), n = token(upos = "NOUN") where a directly precedes n or n directly precedes a',
+    'find a = word(upos = "ADJ"), n = word(upos = "NOUN") where a directly precedes n or n directly precedes a',
 ]
 
 
@@ -95,13 +95,13 @@ def test_a_query_not_tied_to_one_document_is_not_windowed(gum, full_listings, qu
 
 def test_aggregates_are_never_windowed(gum):
     _, store = gum
-    compiled = compile_query('find t = token(upos = "VERB") count by t.lemma', store, limit=20)
+    compiled = compile_query('find t = word(upos = "VERB") count by t.lemma', store, limit=20)
     assert compiled.kind == "aggregate" and compiled.state.sql.window is None
 
 
 def test_decision_is_shown_by_explain(ferry):
     _, cat = ferry
-    text = compile_query('find w = word, s = sentence where w inside s', cat, limit=5).explain_text()
+    text = compile_query('find w = token, s = sentence where w inside s', cat, limit=5).explain_text()
     assert "limit: windowed" in text and "windowed sql" in text
     text = compile_query('find a = mention, b = mention where a same entity as b', cat, limit=5).explain_text()
     assert "limit: not windowed" in text and "windowed sql" not in text
@@ -113,14 +113,14 @@ def ferry():
 
 
 @pytest.mark.parametrize(("query", "local"), [
-    ("find w = word", True),
-    ("find w = word, s = sentence where w inside s", True),
-    ("find w = word, p = word where w meets p in time", True),
-    ("find a = token, b = token where a depends on b via dep", True),
+    ("find w = token", True),
+    ("find w = token, s = sentence where w inside s", True),
+    ("find w = token, p = token where w meets p in time", True),
+    ("find a = word, b = word where a depends on b via dep", True),
     ("find a = phrase, b = phrase where a under b", True),
-    ("find a = word, b = word, c = word where a precedes b allow cross product", False),   # c is free
+    ("find a = token, b = token, c = token where a precedes b allow cross product", False),   # c is free
     ("find a = mention, b = mention where a same entity as b", False),
-    ("find a = word, s = sentence where not (a inside s)", False),
+    ("find a = token, s = sentence where not (a inside s)", False),
 ])
 def test_document_locality(ferry, query, local):
     _, cat = ferry
@@ -137,7 +137,7 @@ def test_every_reading_is_not_windowed(ferry):
 
 def test_explain_without_a_limit_names_the_decision(ferry):
     _, cat = ferry
-    text = compile_query('find w = word, s = sentence where w inside s', cat).explain_text()
+    text = compile_query('find w = token, s = sentence where w inside s', cat).explain_text()
     assert "limit: none given; a listing with one is windowed" in text
-    text = compile_query('find w = word, s = sentence where w inside s limit 3', cat).explain_text()
+    text = compile_query('find w = token, s = sentence where w inside s limit 3', cat).explain_text()
     assert "limit: windowed" in text

@@ -24,8 +24,8 @@ from tests.conftest import first_gum_document, first_gum_sentences
 from tests.test_cli_query import strata
 
 SENTENCES = 60
-AWKWARD = 'find t = token(form in [",", "\\"", "“", "”", "–"]) show t.lemma, t.misc, t.feats'
-GROUPED = "find t = token count by t.feats.Number, t.upos"        # many tokens have no Number
+AWKWARD = 'find t = word(form in [",", "\\"", "“", "”", "–"]) show t.lemma, t.misc, t.feats'
+GROUPED = "find t = word count by t.feats.Number, t.upos"        # many words have no Number
 
 
 @pytest.fixture(scope="module")
@@ -110,7 +110,7 @@ def test_awkward_text_is_really_there(small):
 
 
 def test_tabs_and_line_breaks_survive_tsv_through_pandas(tmp_path):
-    """No treebank token holds a tab, so a table of awkward strings stands in for one."""
+    """No treebank word holds a tab, so a table of awkward strings stands in for one."""
     import pyarrow as pa
     from engine.results import Hits
     awkward = ["plain", "tab\there", "two\nlines", "cr\rhere", "back\\slash", "back\\tslash", '"quoted"',
@@ -145,19 +145,19 @@ STEPS_MS = [137, 186, 1_814, 3, 250, 999, 1_001, 42]
 
 @pytest.fixture(scope="module")
 def timed(tmp_path_factory):
-    """The first treebank document with a word tier; returns (corpus, {form: (start, end)} texts)."""
+    """The first treebank document with a token tier; returns (corpus, {form: (start, end)} texts)."""
     root = tmp_path_factory.mktemp("timed")
     corpus, _ = first_gum_document(root)
     doc = corpus.store.documents()[0]
     con = corpus.connect()
-    forms = [f for (f,) in con.execute("""SELECT w.form FROM word w JOIN token t ON t.ord = w.tok_first
+    forms = [f for (f,) in con.execute("""SELECT w.form FROM token w JOIN word t ON t.ord = w.word_first
                                            WHERE t.upos <> 'PUNCT' ORDER BY w.ord LIMIT 40""").fetchall()]
     con.close()
     rows, times, t = [], [], BASE_MS
     for i, form in enumerate(forms):
         d = STEPS_MS[i % len(STEPS_MS)]
         start, end = f"{Decimal(t) / 1000}", f"{Decimal(t + d) / 1000}"
-        rows.append(f"{doc.name}\twords\t{start}\t{end}\t{form.lower()}\n")
+        rows.append(f"{doc.name}\tspoken\t{start}\t{end}\t{form.lower()}\n")
         times.append((start, end))
         t += d + (7 if i % 3 else 0)
     tiers = root / "w.tiers.tsv"
@@ -166,7 +166,7 @@ def timed(tmp_path_factory):
     return corpus, times
 
 
-TIMES = "find w = words show w.start, w.end, w.duration"
+TIMES = "find w = spoken show w.start, w.end, w.duration"
 
 
 def test_durations_are_the_exact_decimal_differences(timed, tmp_path):
@@ -184,7 +184,7 @@ def test_durations_are_the_exact_decimal_differences(timed, tmp_path):
 
 def test_gaps_are_the_exact_decimal_differences(timed, tmp_path):
     corpus, times = timed
-    query = "find a = words, b = words where a directly precedes b show gap(a, b)"
+    query = "find a = spoken, b = spoken where a directly precedes b show gap(a, b)"
     hits = corpus.query(query)
     want = [Decimal(b[0]) - Decimal(a[1]) for a, b in zip(times, times[1:])]
     assert [Decimal(repr(v)) for v in hits.to_arrow().column("gap(a, b)").to_pylist()] == want
@@ -205,7 +205,7 @@ def test_the_screen_keeps_every_digit(timed):
 def test_a_listing_gives_each_timed_node_its_time_span(timed, tmp_path):
     corpus, times = timed
     out = tmp_path / "t.csv"
-    done = strata("query", str(corpus.path), "find w = words", "-o", str(out))
+    done = strata("query", str(corpus.path), "find w = spoken", "-o", str(out))
     assert done.returncode == 0, done.stderr
     with open(out, encoding="utf-8", newline="") as f:
         rows = list(csv.DictReader(f))

@@ -2,7 +2,7 @@
 id, CoNLL-U ID, character span, and the time span where there is one.
 
 The reference is the open treebank's dev split as the `conllu` library (from the package
-registry) parses it: `# newdoc id`, `# sent_id`, each word's ID, FORM and HEAD.
+registry) parses it: `# newdoc id`, `# sent_id`, each token's ID, FORM and HEAD.
 """
 from __future__ import annotations
 
@@ -40,7 +40,7 @@ def words_of(parsed):
 
 def test_each_node_names_its_document_sentence_and_conllu_id(gum):
     corpus, parsed = gum
-    hits = corpus.query('find t = token(upos = "VERB")')
+    hits = corpus.query('find t = word(upos = "VERB")')
     got = [(r["t.doc"], r["t.sentence"], r["t.conllu_id"], r["t.text"]) for r in hits.rows()]
     want = [(d, s, i, f) for d, s, i, f, upos, _, _ in words_of(parsed) if upos == "VERB"]
     assert got == want and len(got) > 100
@@ -54,7 +54,7 @@ def test_each_node_names_its_document_sentence_and_conllu_id(gum):
 
 def test_two_variables_each_with_its_own_place(gum):
     corpus, parsed = gum
-    hits = corpus.query('find d = token(deprel = "nsubj"), h = token where d depends on h')
+    hits = corpus.query('find d = word(deprel = "nsubj"), h = word where d depends on h')
     got = Counter((r["d.doc"], r["d.sentence"], r["d.conllu_id"], r["h.sentence"], r["h.conllu_id"])
                   for r in hits.rows())
     want = Counter((doc, s, i, s, str(head)) for doc, s, i, _, _, deprel, head in words_of(parsed)
@@ -64,22 +64,22 @@ def test_two_variables_each_with_its_own_place(gum):
 
 def test_a_node_s_doc_and_sentence_are_names(gum):
     corpus, parsed = gum
-    by_doc = corpus.query("find t = token count by t.doc").rows()
+    by_doc = corpus.query("find t = word count by t.doc").rows()
     want = Counter(d for d, *_ in words_of(parsed))
     assert {r["t.doc"]: r["count"] for r in by_doc} == dict(want)
-    listed = corpus.query('find t = token(upos = "PROPN") show t.doc, t.sentence').rows()
+    listed = corpus.query('find t = word(upos = "PROPN") show t.doc, t.sentence').rows()
     assert [(r["t.doc"], r["t.sentence"]) for r in listed] == \
         [(d, s) for d, s, _, _, upos, _, _ in words_of(parsed) if upos == "PROPN"]
 
 
 @pytest.mark.parametrize("template", [
-    'find t = token({k} = "{v}") count',
-    'find t = token where t.{k} = "{v}" count',
-    'find t = token(upos = "NOUN") show t.{k} limit 3',
-    "find t = token count by t.{k}",
-    'find s = sentence without t = token({k} = "{v}") where t inside s count',
-    'find t = token without u = token(upos = "PUNCT") where u directly follows t and u.{k} = "{v}" count',
-    "find t = token max(t.char_end) by t.{k}",
+    'find t = word({k} = "{v}") count',
+    'find t = word where t.{k} = "{v}" count',
+    'find t = word(upos = "NOUN") show t.{k} limit 3',
+    "find t = word count by t.{k}",
+    'find s = sentence without t = word({k} = "{v}") where t inside s count',
+    'find t = word without u = word(upos = "PUNCT") where u directly follows t and u.{k} = "{v}" count',
+    "find t = word max(t.char_end) by t.{k}",
 ])
 def test_doc_attributes_work_wherever_sentence_attributes_do(gum, template):
     corpus, parsed = gum
@@ -89,8 +89,8 @@ def test_doc_attributes_work_wherever_sentence_attributes_do(gum, template):
     by_doc = corpus.query(template.format(k="doc.name", v=first_doc))
     assert len(by_sentence) > 0 and len(by_doc) > 0
     if "count" in template and "by" not in template:
-        words = words_of(parsed)
-        n_doc = sum(1 for w in words if w[0] == first_doc)
-        n_sentence = sum(1 for w in words if w[1] == first_sentence)
-        if template.startswith('find t = token({k}') or template.startswith("find t = token where"):
+        tokens = words_of(parsed)
+        n_doc = sum(1 for w in tokens if w[0] == first_doc)
+        n_sentence = sum(1 for w in tokens if w[1] == first_sentence)
+        if template.startswith('find t = word({k}') or template.startswith("find t = word where"):
             assert by_doc.rows()[0]["count"] == n_doc and by_sentence.rows()[0]["count"] == n_sentence

@@ -130,7 +130,7 @@ def _dep_tree(sent) -> tuple[str, list[tuple[int, int]] | None, list[tuple[str, 
     Returns the bracketing, the expected character span (sentence-local) of each
     constituent in pre-order, and the syntactic words with their spans.
     """
-    words = [t for t in sent if isinstance(t["id"], int)]
+    tokens = [t for t in sent if isinstance(t["id"], int)]
     # sentence-local character spans of syntactic words: a multiword token's parts share it
     spans, pos, mwt = {}, 0, {}
     for t in sent:
@@ -144,14 +144,14 @@ def _dep_tree(sent) -> tuple[str, list[tuple[int, int]] | None, list[tuple[str, 
             pos += len(t["form"]) + (0 if (t["misc"] or {}).get("SpaceAfter") == "No" else 1)
     spans.update(mwt)
     if mwt:
-        return "", None, []                     # multiword tokens: leaves are not whole words; skip
+        return "", None, []                     # multiword tokens: leaves are not whole tokens; skip
     kids: dict[int, list[int]] = {}
-    for t in words:
+    for t in tokens:
         kids.setdefault(t["head"], []).append(t["id"])
     expected: list[tuple[int, int]] = []
 
     def build(h: int) -> str:
-        tok = next(t for t in words if t["id"] == h)
+        tok = next(t for t in tokens if t["id"] == h)
         members = sorted(kids.get(h, []) + [h])
         at = len(expected)
         expected.append((0, 0))
@@ -167,7 +167,7 @@ def _dep_tree(sent) -> tuple[str, list[tuple[int, int]] | None, list[tuple[str, 
         return f"({(tok['deprel'] or 'dep').split(':')[0].upper()} " + " ".join(parts) + ")"
 
     root = kids[0][0]
-    return build(root), expected, [(t["form"], *spans[t["id"]]) for t in words]
+    return build(root), expected, [(t["form"], *spans[t["id"]]) for t in tokens]
 
 
 def _subtree(h: int, kids: dict[int, list[int]]) -> list[int]:
@@ -180,11 +180,11 @@ def _subtree(h: int, kids: dict[int, list[int]]) -> list[int]:
 
 
 def _projective(sent) -> bool:
-    words = [t for t in sent if isinstance(t["id"], int)]
+    tokens = [t for t in sent if isinstance(t["id"], int)]
     kids: dict[int, list[int]] = {}
-    for t in words:
+    for t in tokens:
         kids.setdefault(t["head"], []).append(t["id"])
-    for t in words:
+    for t in tokens:
         sub = sorted(_subtree(t["id"], kids))
         if sub != list(range(sub[0], sub[-1] + 1)):
             return False
@@ -238,8 +238,8 @@ def test_leaves_align_exactly_and_tree_columns_nest(gum_trees):
                          WHERE NOT (p.pre < a.pre AND a.post < p.post AND a.depth = p.depth + 1
                                     AND p.start <= a.start AND a."end" <= p."end")""").fetchone()[0]
     assert bad == 0
-    leaf_tokens = con.execute("""SELECT count(*) FROM dtree l JOIN token t ON t.id IS NOT NULL
-                                 AND t.tok_first = l.tok_first WHERE l.is_leaf AND t.form <> l.form""").fetchone()[0]
+    leaf_tokens = con.execute("""SELECT count(*) FROM dtree l JOIN word t ON t.id IS NOT NULL
+                                 AND t.word_first = l.word_first WHERE l.is_leaf AND t.form <> l.form""").fetchone()[0]
     assert leaf_tokens == 0
 
 
@@ -315,7 +315,7 @@ def test_readings_with_sentence_ids(tmp_path):
     assert per_reading[0][2] == per_reading[1][2] == ["They", "saw", "her", "duck", "."]
     sent = con.execute("SELECT DISTINCT t.sent = s.id FROM tree t, sentence s").fetchall()
     assert sent == [(True,)]
-    times = con.execute("SELECT count(*) FROM tree WHERE tok_first IS NULL AND is_leaf").fetchone()[0]
+    times = con.execute("SELECT count(*) FROM tree WHERE word_first IS NULL AND is_leaf").fetchone()[0]
     assert times == 0
 
 

@@ -12,8 +12,8 @@ from tests.conftest import gum_file
 # Published figures of UD English GUM (its stats.xml, as tabled in
 # ../shared/data/ud-english-gum/README.md, commit afb41ee9 of the UD release repository).
 PUBLISHED = {
-    "dev": {"sentences": 1575, "words": 27602, "tokens": 28119, "multiword tokens": 517, "empty nodes": 12},
-    "test": {"sentences": 1464, "words": 27986, "tokens": 28397, "multiword tokens": 411, "empty nodes": 15},
+    "dev": {"sentences": 1575, "tokens": 27602, "words": 28119, "multiword tokens": 517, "empty nodes": 12},
+    "test": {"sentences": 1464, "tokens": 27986, "words": 28397, "multiword tokens": 411, "empty nodes": 15},
 }
 
 
@@ -24,10 +24,10 @@ def test_published_figures(gum_corpora, split):
         assert report.counts[key] == value, key
     layers = corpus.store.layers()
     assert layers["sentence"].rows == PUBLISHED[split]["sentences"]
-    assert layers["word"].rows == PUBLISHED[split]["words"]          # surface tokens
-    assert layers["token"].rows == PUBLISHED[split]["tokens"]        # syntactic words
+    assert layers["token"].rows == PUBLISHED[split]["tokens"]          # surface tokens
+    assert layers["word"].rows == PUBLISHED[split]["words"]        # syntactic words
     assert corpus.info()["documents"] == 30                          # README: 30 documents per split
-    assert report.warnings == []                                     # every "# text" agrees with the tokens
+    assert report.warnings == []                                     # every "# text" agrees with the words
 
 
 def _stored(corpus, sql):
@@ -42,10 +42,10 @@ def _stored(corpus, sql):
 def test_every_sentence_matches_the_reference_library(gum_corpora, split):
     """Forms, lemmas, tags, heads, relations and features against `conllu` (PyPI), sentence by sentence."""
     corpus, _, path = gum_corpora[split]
-    feat_cols = [a for a in corpus.store.layers()["token"].attrs if a.startswith("feats.")]
+    feat_cols = [a for a in corpus.store.layers()["word"].attrs if a.startswith("feats.")]
     cols = ", ".join(f'"{c}"' for c in feat_cols)
     rows = _stored(corpus, f"SELECT s.sent_id, t.cid, t.form, t.lemma, t.upos, t.xpos, t.head_num, t.deprel, {cols} "
-                           "FROM token t JOIN sentence s ON t.sent = s.id ORDER BY t.id")
+                           "FROM word t JOIN sentence s ON t.sent = s.id ORDER BY t.id")
     by_sent: dict[str, list] = {}
     for r in rows:
         by_sent.setdefault(r[0], []).append(r)
@@ -53,9 +53,9 @@ def test_every_sentence_matches_the_reference_library(gum_corpora, split):
     with open(path, encoding="utf-8") as f:
         for sentence in conllu.parse_incr(f):
             mine = by_sent.pop(sentence.metadata["sent_id"])
-            words = [t for t in sentence if isinstance(t["id"], int)]
-            assert len(mine) == len(words)
-            for row, tok in zip(mine, words):
+            tokens = [t for t in sentence if isinstance(t["id"], int)]
+            assert len(mine) == len(tokens)
+            for row, tok in zip(mine, tokens):
                 _, cid, form, lemma, upos, xpos, head, deprel, *feats = row
                 assert (int(cid), form, lemma) == (tok["id"], tok["form"], tok["lemma"])
                 assert upos == tok["upos"] and xpos == tok["xpos"]
@@ -65,22 +65,22 @@ def test_every_sentence_matches_the_reference_library(gum_corpora, split):
                 assert got == expected
                 n += 1
     assert by_sent == {}
-    assert n == PUBLISHED[split]["tokens"]
+    assert n == PUBLISHED[split]["words"]
 
 
 @pytest.mark.parametrize("split", ["dev"])
 def test_offsets_point_at_the_forms(gum_corpora, split):
-    """Every surface word, and every syntactic word outside a multiword token, sits on its own characters."""
+    """Every surface token, and every syntactic word outside a multiword token, sits on its own characters."""
     corpus, _, _ = gum_corpora[split]
     bad = _stored(corpus, """
         SELECT w.form, substr(d.text, CAST(w.start - d.base + 1 AS INTEGER), CAST(w."end" - w.start AS INTEGER))
-        FROM word w JOIN documents d USING (doc)
+        FROM token w JOIN documents d USING (doc)
         WHERE substr(d.text, CAST(w.start - d.base + 1 AS INTEGER), CAST(w."end" - w.start AS INTEGER)) <> w.form""")
     assert bad == []
     # syntactic words of a multiword token stay inside it and tile it
     tiles = _stored(corpus, """
         SELECT w.id, min(t.start) = w.start, max(t."end") = w."end", sum(t."end" - t.start) = w."end" - w.start
-        FROM word w JOIN token t ON t.start >= w.start AND t."end" <= w."end" AND t.doc = w.doc
+        FROM token w JOIN word t ON t.start >= w.start AND t."end" <= w."end" AND t.doc = w.doc
         WHERE w.mwt GROUP BY w.id, w.start, w."end"
         """)
     assert len(tiles) == PUBLISHED[split]["multiword tokens"]
@@ -90,7 +90,7 @@ def test_offsets_point_at_the_forms(gum_corpora, split):
 def test_dependency_tree_numbers_match_graph_ancestry(gum_corpora):
     """`under` by pre/post intervals equals ancestry in the head graph, computed with networkx."""
     corpus, _, _ = gum_corpora["dev"]
-    rows = _stored(corpus, "SELECT id, parent, pre, post, depth, sent FROM token WHERE sent IN "
+    rows = _stored(corpus, "SELECT id, parent, pre, post, depth, sent FROM word WHERE sent IN "
                            "(SELECT id FROM sentence ORDER BY id LIMIT 60)")
     g = nx.DiGraph()
     info = {}
@@ -114,7 +114,7 @@ def _reference_mentions(path):
 
     Written for this test from the notation's description in the treebank's README and the
     UD guidelines; shares no code with the importer. Returns (doc, sent_id, first, last, eid)
-    with word positions counted within the sentence.
+    with token positions counted within the sentence.
     """
     out = []
     doc = None
@@ -122,8 +122,8 @@ def _reference_mentions(path):
         for sentence in conllu.parse_incr(f):
             doc = sentence.metadata.get("newdoc id", doc)
             opened: dict[str, list[int]] = {}
-            words = [t for t in sentence if isinstance(t["id"], int)]
-            for pos, tok in enumerate(words):
+            tokens = [t for t in sentence if isinstance(t["id"], int)]
+            for pos, tok in enumerate(tokens):
                 value = (tok["misc"] or {}).get("Entity")
                 if not value:
                     continue
@@ -153,7 +153,7 @@ def test_mentions_and_chains_match_an_independent_reader(gum_corpora, split):
     corpus, report, path = gum_corpora[split]
     expected = _reference_mentions(path)
     rows = _stored(corpus, """
-        SELECT d.name, s.sent_id, m.tok_first - s.tok_first, m.tok_last - s.tok_first, m.entity, m.chain,
+        SELECT d.name, s.sent_id, m.word_first - s.word_first, m.word_last - s.word_first, m.entity, m.chain,
                m.chain_pos, m.first_mention, m.start, m."end"
         FROM mention m JOIN sentence s ON m.sent = s.id JOIN documents d ON d.doc = m.doc""")
     assert sorted(r[:5] for r in rows) == sorted(expected)
@@ -213,3 +213,25 @@ def test_empty_nodes_and_enhanced_graph_kept(gum_corpora):
             if len(cols) == 10 and re.fullmatch(r"\d+(\.\d+)?", cols[0]) and cols[8] != "_":
                 expected += len(cols[8].split("|"))
     assert _stored(corpus, "SELECT count(*) FROM enhanced")[0][0] == expected
+
+
+@pytest.mark.parametrize("split", ["dev", "test"])
+def test_layer_names_follow_the_standard(gum_corpora, split):
+    """CoNLL-U: a word has an integer ID (and UPOS); a token is a surface token, a multiword
+    range such as 1-2 once instead of its words. Counted here with the `conllu` library."""
+    corpus, _, path = gum_corpora[split]
+    verbs = surface = 0
+    with open(path, encoding="utf-8") as f:
+        for sentence in conllu.parse_incr(f):
+            covered: set[int] = set()
+            for t in sentence:
+                if isinstance(t["id"], tuple) and t["id"][1] == "-":      # a multiword token a-b
+                    surface += 1
+                    covered.update(range(t["id"][0], t["id"][2] + 1))
+            for t in sentence:
+                if isinstance(t["id"], int):
+                    verbs += t["upos"] == "VERB"
+                    surface += t["id"] not in covered
+    assert corpus.query('find x = word(upos = "VERB") count').rows() == [{"count": verbs}]
+    assert corpus.query("find x = token count").rows() == [{"count": surface}]
+    assert surface == PUBLISHED[split]["tokens"] and verbs > 1000

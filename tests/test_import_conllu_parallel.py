@@ -15,13 +15,13 @@ from engine.importers import conllu_parallel
 from tests.conftest import gum_file
 
 QUERIES = [
-    'find t = token(upos = "VERB") count',
-    'find t = token, m = mention(type = "person") where t inside m count',
-    'find s = token(upos = "PRON", deprel = "nsubj"), v = token(upos = "VERB") where s depends on v count',
+    'find t = word(upos = "VERB") count',
+    'find t = word, m = mention(type = "person") where t inside m count',
+    'find s = word(upos = "PRON", deprel = "nsubj"), v = word(upos = "VERB") where s depends on v count',
     'find a = mention, b = mention where a previous mention of b count',
     'find a = mention, b = mention where a same entity as b count',
-    'find a = token(upos = "ADJ"), o = token(deprel = "obj") where a under o count',
-    'find t = token(feats.Number = "Plur") count by t.upos',
+    'find a = word(upos = "ADJ"), o = word(deprel = "obj") where a under o count',
+    'find t = word(feats.Number = "Plur") count by t.upos',
 ]
 
 
@@ -74,14 +74,14 @@ def test_node_ids_stay_unique_and_anchors_disjoint(tmp_path, split_small, monkey
     two = _import(tmp_path, "two", [gum_file("dev"), gum_file("test")], True, monkeypatch)
     con = two.connect()
     try:
-        ids = con.execute("SELECT count(*), count(DISTINCT id) FROM (SELECT id FROM token UNION ALL "
-                          "SELECT id FROM word UNION ALL SELECT id FROM sentence UNION ALL "
+        ids = con.execute("SELECT count(*), count(DISTINCT id) FROM (SELECT id FROM word UNION ALL "
+                          "SELECT id FROM token UNION ALL SELECT id FROM sentence UNION ALL "
                           "SELECT id FROM mention UNION ALL SELECT id FROM empty)").fetchall()[0]
         assert ids[0] == ids[1]
         overlap = con.execute("""SELECT count(*) FROM documents a JOIN documents b ON a.doc < b.doc
                                  AND a.base < b.base + b.length AND b.base < a.base + a.length""").fetchall()
         assert overlap == [(0,)]
-        outside = con.execute("""SELECT count(*) FROM token t JOIN documents d ON d.doc = t.doc
+        outside = con.execute("""SELECT count(*) FROM word t JOIN documents d ON d.doc = t.doc
                                  WHERE t.start < d.base OR t."end" > d.base + d.length""").fetchall()
         assert outside == [(0,)]
     finally:
@@ -148,12 +148,12 @@ def test_bounds_cover_what_a_half_uses(tmp_path, split_small, monkeypatch):
     c = _import(tmp_path, "b", [f], False, monkeypatch)
     con = c.connect()
     try:
-        used = con.execute("""SELECT (SELECT max(id) + 1 FROM (SELECT id FROM token UNION ALL SELECT id FROM word
+        used = con.execute("""SELECT (SELECT max(id) + 1 FROM (SELECT id FROM word UNION ALL SELECT id FROM token
                                   UNION ALL SELECT id FROM sentence UNION ALL SELECT id FROM mention
                                   UNION ALL SELECT id FROM empty)),
                                  (SELECT max(chain) + 1 FROM mention),
                                  (SELECT max(base + length) FROM documents),
-                                 (SELECT max(ord) + 1 FROM token), (SELECT max(post) + 1 FROM token)""").fetchall()[0]
+                                 (SELECT max(ord) + 1 FROM word), (SELECT max(post) + 1 FROM word)""").fetchall()[0]
     finally:
         con.close()
     for value, key in zip(used, ("next_id", "next_chain", "next_base", "tok_ord", "order")):
@@ -202,7 +202,7 @@ def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_pat
     order (ids and anchors increase along the catalog's parts), and the import report (files,
     counts, warnings) is the one-process report."""
     def text_differs(lines):
-        # a '# text' that disagrees with its tokens, in several late sentences: one warning each
+        # a '# text' that disagrees with its words, in several late sentences: one warning each
         at = [i for i, x in enumerate(lines) if x.startswith("# text = ")]
         for i in at[-40::8]:
             lines[i] += " (edited)"
@@ -220,7 +220,7 @@ def test_parts_of_both_processes_are_in_file_order_and_the_reports_agree(tmp_pat
     con = two.store.catalog_connection()
     try:
         token_parts = [str(two.path / p) for (p,) in con.execute(
-            "SELECT path FROM parts WHERE layer = 'token' ORDER BY path").fetchall()]
+            "SELECT path FROM parts WHERE layer = 'word' ORDER BY path").fetchall()]
     finally:
         con.close()
     assert any(Path(p).name.split("-")[-1].startswith("q") for p in token_parts)
@@ -243,7 +243,7 @@ def test_the_same_input_gives_the_same_ids_whoever_imports_a_block(tmp_path, spl
         monkeypatch.setattr(conllu_parallel, "MAIN_MAX_SHARE", share)
         corpus = _import(tmp_path, f"s{share}", files, True, monkeypatch)
         con = corpus.connect()
-        tables.append(con.sql('SELECT id, doc, start, "end", sent, ord, parent, pre, post FROM token ORDER BY id')
+        tables.append(con.sql('SELECT id, doc, start, "end", sent, ord, parent, pre, post FROM word ORDER BY id')
                       .to_arrow_table())
         tables.append(con.sql("SELECT id, chain, start FROM mention ORDER BY id").to_arrow_table())
         tables.append(con.sql("SELECT doc, name, base FROM documents ORDER BY doc").to_arrow_table())

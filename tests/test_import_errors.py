@@ -29,15 +29,15 @@ def _head(n_sentences: int) -> list[str]:
     return out
 
 
-def _token_line(lines: list[str], sentence: int, word: str) -> int:
-    """Index of the line of word ``word`` in the ``sentence``-th sentence (0-based)."""
+def _token_line(lines: list[str], sentence: int, token: str) -> int:
+    """Index of the line of token ``token`` in the ``sentence``-th sentence (0-based)."""
     seen = 0
     for i, line in enumerate(lines):
         if line == "\n":
             seen += 1
-        elif seen == sentence and line.split("\t")[0] == word:
+        elif seen == sentence and line.split("\t")[0] == token:
             return i
-    raise LookupError(word)
+    raise LookupError(token)
 
 
 def _set(lines, i, col, value):
@@ -72,13 +72,13 @@ def _breakers():
         return i, "out of range"
 
     def cycle(lines):
-        # sentence 2: word 1 depends on 12 (the root); make the root depend on word 1
+        # sentence 2: token 1 depends on 12 (the root); make the root depend on token 1
         i = _token_line(lines, 1, "12")
         _set(lines, i, 6, "1")
         return i - 11, "cycle"
 
     def unbalanced_entity(lines):
-        i = _token_line(lines, 1, "7")      # "Entity=3)" closes the mention opened on word 3
+        i = _token_line(lines, 1, "7")      # "Entity=3)" closes the mention opened on token 3
         _set(lines, i, 9, "_")
         return _token_line(lines, 1, "3"), "never closed"
 
@@ -110,14 +110,14 @@ def test_bad_file_names_the_line_and_changes_nothing(tmp_path, breaker):
 
     lines = _head(3)
     lines = [l.replace("GUM_academic_exposure", "other_doc") for l in lines]
-    index, words = breaker(lines)
+    index, tokens = breaker(lines)
     bad = tmp_path / "bad.conllu"
     _write(bad, lines)
     with pytest.raises(StrataError) as e:
         Corpus.open(corpus.path).import_files([bad], progress=False)
     assert e.value.file == str(bad)
     assert e.value.line == index + 1
-    assert words in str(e.value)
+    assert tokens in str(e.value)
     assert f"bad.conllu:{index + 1}:" in str(e.value)
     assert _snapshot(Corpus.open(corpus.path)) == before
 
@@ -138,7 +138,7 @@ def test_a_second_annotation_goes_under_a_prefix(tmp_path):
     lines = _head(3)
     path = tmp_path / "gold.conllu"
     _write(path, lines)
-    # a "parser output" of the same text: the same tokens with other relations
+    # a "parser output" of the same text: the same words with other relations
     parsed = [l if l.startswith("#") or l == "\n" else "\t".join(
         c if k != 7 else "dep" for k, c in enumerate(l.split("\t"))) for l in lines]
     _write(tmp_path / "parsed.conllu", parsed)
@@ -148,10 +148,10 @@ def test_a_second_annotation_goes_under_a_prefix(tmp_path):
         corpus.import_files([tmp_path / "parsed.conllu"], progress=False)
     corpus.import_files([tmp_path / "parsed.conllu"], prefix="parser", progress=False)
     con = corpus.connect()
-    same = con.execute('SELECT count(*) FROM token g JOIN "parser.token" p ON g.start = p.start AND g."end" = p."end"'
+    same = con.execute('SELECT count(*) FROM word g JOIN "parser.word" p ON g.start = p.start AND g."end" = p."end"'
                        ).fetchone()[0]
-    assert same == con.execute("SELECT count(*) FROM token").fetchone()[0] > 0
-    assert con.execute('SELECT DISTINCT deprel FROM "parser.token"').fetchall() == [("dep",)]
+    assert same == con.execute("SELECT count(*) FROM word").fetchone()[0] > 0
+    assert con.execute('SELECT DISTINCT deprel FROM "parser.word"').fetchall() == [("dep",)]
     assert con.execute("SELECT count(*) FROM documents").fetchone()[0] == 1    # one text, two annotations
     assert corpus.export("conllu", prefix="parser") == "".join(parsed)
 
@@ -185,7 +185,7 @@ def test_cli_import_info_export(tmp_path):
     assert r.returncode == 0, r.stderr
     assert "4 sentences" in r.stdout
     r = _cli("info", tmp_path / "c", cwd=tmp_path)
-    assert r.returncode == 0 and "token" in r.stdout and "mention" in r.stdout
+    assert r.returncode == 0 and "word" in r.stdout and "mention" in r.stdout
     r = _cli("export", tmp_path / "c", "-o", tmp_path / "back.conllu", cwd=tmp_path)
     assert r.returncode == 0
     assert (tmp_path / "back.conllu").read_bytes() == good.read_bytes()
@@ -194,7 +194,7 @@ def test_cli_import_info_export(tmp_path):
 
 
 def test_text_comment_that_disagrees_with_the_tokens_is_reported(tmp_path):
-    """The primary text comes from the tokens and SpaceAfter; a differing '# text' is named by line."""
+    """The primary text comes from the words and SpaceAfter; a differing '# text' is named by line."""
     lines = _head(3)
     i = next(k for k, l in enumerate(lines) if l.startswith("# text = ") and k > 20)
     lines[i] = lines[i].rstrip("\n") + " (edited)\n"

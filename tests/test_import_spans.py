@@ -3,7 +3,7 @@
 The spans are written here from the ``conllu`` reference library's parse of the first
 document of ../shared/data/ud-english-gum (read in place): every span is one of the
 treebank's own entity mentions (MISC ``Entity`` brackets, the CorefUD convention), given
-once as characters, once as token ordinals; both must land on the characters the
+once as characters, once as word ordinals; both must land on the characters the
 ``mention`` layer has for that mention.
 """
 from __future__ import annotations
@@ -24,7 +24,7 @@ def _first_doc(tmp: Path) -> tuple[Corpus, Path]:
 
 
 def _single_token_mentions(src: Path) -> list[tuple[int, str]]:
-    """Document-level token ordinals (from 0) of one-word mentions ``(id-type...)``, per ``conllu``."""
+    """Document-level word ordinals (from 0) of one-token mentions ``(id-type...)``, per ``conllu``."""
     out, k = [], 0
     with open(src, encoding="utf-8") as f:
         for sent in conllu.parse_incr(f):
@@ -46,7 +46,7 @@ def test_token_and_char_anchors_land_on_the_mentions(tmp_path):
     tok = tmp_path / "m.spans.tsv"
     tok.write_text("doc\tstart\tend\tlabel\n" + "".join(f"{name}\t{k}\t{k}\t{t}\n" for k, t in mentions),
                    encoding="utf-8")
-    corpus.import_files([tok], anchor="tokens:token", layer="bytoken", progress=False)
+    corpus.import_files([tok], anchor="tokens:word", layer="bytoken", progress=False)
     con = corpus.connect()
     base = con.execute("SELECT base FROM documents").fetchone()[0]
     chars = con.execute('SELECT start - ?, "end" - ?, label FROM bytoken ORDER BY id', [base, base]).fetchall()
@@ -58,14 +58,14 @@ def test_token_and_char_anchors_land_on_the_mentions(tmp_path):
     con = corpus.connect()
     same = con.execute("""SELECT count(*) FROM bytoken a JOIN bychar b ON a.start = b.start AND a."end" = b."end"
                           JOIN mention m ON m.start = a.start AND m."end" = a."end" AND m.type = a.label
-                          WHERE a.tok_first = b.tok_first AND b.sent = m.sent""").fetchone()[0]
+                          WHERE a.word_first = b.word_first AND b.sent = m.sent""").fetchone()[0]
     assert same == len(mentions)
 
 
 @pytest.mark.parametrize("anchor, row, message", [
     ("chars", "{d}\t10\t99999\tx", "outside document"),
     ("chars", "{d}\t10\t5\tx", "before start"),
-    ("tokens:token", "{d}\t0\t99999\tx", "outside document"),
+    ("tokens:word", "{d}\t0\t99999\tx", "outside document"),
     ("chars", "other\t0\t1\tx", "unknown document 'other'"),
     ("chars", "{d}\tten\t12\tx", "not a whole number"),
 ])
@@ -86,5 +86,5 @@ def test_unknown_anchor_layer_is_named(tmp_path):
     corpus, _ = _first_doc(tmp_path)
     path = tmp_path / "x.spans.tsv"
     path.write_text("doc\tstart\tend\tlabel\n", encoding="utf-8")
-    with pytest.raises(StrataError, match="no layer 'tokn'"):
-        corpus.import_files([path], anchor="tokens:tokn", progress=False)
+    with pytest.raises(StrataError, match="no layer 'wrod'"):
+        corpus.import_files([path], anchor="tokens:wrod", progress=False)

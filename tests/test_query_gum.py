@@ -44,7 +44,7 @@ class Sentence:
     doc: str
     genre: str | None
     speaker: str | None
-    words: list[dict]   # syntactic words only (integer ids), as `conllu` gives them
+    tokens: list[dict]   # syntactic words only (integer ids), as `conllu` gives them
 
 
 @dataclass
@@ -57,11 +57,11 @@ def _entity_brackets(sent: Sentence) -> list[Mention]:
     """Mentions of one sentence from ``Entity=`` in MISC.
 
     Notation (UD coreference): ``(eid-type-...`` opens, ``eid)`` closes, ``(eid-type-...)``
-    is a one-word mention; several brackets may follow each other in one value.
+    is a one-token mention; several brackets may follow each other in one value.
     """
     out: list[Mention] = []
     opened: dict[str, list[tuple[int, str]]] = {}
-    for pos, tok in enumerate(sent.words):
+    for pos, tok in enumerate(sent.tokens):
         value = (tok["misc"] or {}).get("Entity") or ""
         for m in re.finditer(r"\(([^()]+)\)?|([^()]+)\)", value):
             if m.group(1) is not None:
@@ -112,7 +112,7 @@ def _count(corpus, query: str) -> int:
 
 
 def _heads(sent: Sentence) -> dict[int, dict]:
-    return {t["id"]: t for t in sent.words}
+    return {t["id"]: t for t in sent.tokens}
 
 
 def _ancestors(sent: Sentence, tok: dict) -> list[int]:
@@ -126,7 +126,7 @@ def _ancestors(sent: Sentence, tok: dict) -> list[int]:
 
 # ---- syntax ----------------------------------------------------------------------------
 
-PRONOUN_SUBJECTS = ('find s = token(upos = "PRON", deprel = "nsubj"), v = token(upos = "VERB") '
+PRONOUN_SUBJECTS = ('find s = word(upos = "PRON", deprel = "nsubj"), v = word(upos = "VERB") '
                     'where s depends on v')
 
 
@@ -135,7 +135,7 @@ def test_pronoun_subjects_of_verbs(split):
     want = Counter()
     for sent in ref.sentences:
         by_id = _heads(sent)
-        for t in sent.words:
+        for t in sent.tokens:
             head = by_id.get(t["head"])
             if t["upos"] == "PRON" and t["deprel"] == "nsubj" and head and head["upos"] == "VERB":
                 want[head["lemma"]] += 1
@@ -150,11 +150,11 @@ def test_verbs_without_a_nominal_subject(split):
     corpus, ref = split
     want = 0
     for sent in ref.sentences:
-        with_subject = {t["head"] for t in sent.words if t["deprel"] == "nsubj"}
-        want += sum(1 for t in sent.words if t["upos"] == "VERB" and t["id"] not in with_subject)
-    got = _count(corpus, 'find v = token(upos = "VERB") without s = token(deprel = "nsubj") '
+        with_subject = {t["head"] for t in sent.tokens if t["deprel"] == "nsubj"}
+        want += sum(1 for t in sent.tokens if t["upos"] == "VERB" and t["id"] not in with_subject)
+    got = _count(corpus, 'find v = word(upos = "VERB") without s = word(deprel = "nsubj") '
                          'where s depends on v count')
-    verbs = sum(1 for s in ref.sentences for t in s.words if t["upos"] == "VERB")
+    verbs = sum(1 for s in ref.sentences for t in s.tokens if t["upos"] == "VERB")
     assert got == want
     assert 0 < want < verbs
 
@@ -164,7 +164,7 @@ def _adjectives_under_objects(ref: Reference) -> tuple[Counter, Counter]:
     anywhere, direct = Counter(), Counter()
     for sent in ref.sentences:
         by_id = _heads(sent)
-        for t in sent.words:
+        for t in sent.tokens:
             if t["upos"] != "ADJ":
                 continue
             for depth, h in enumerate(_ancestors(sent, t), start=1):
@@ -182,10 +182,10 @@ def _pairs(corpus, query: str) -> Counter:
 def test_adjectives_under_objects_any_depth_and_depth_one(split):
     corpus, ref = split
     anywhere, direct = _adjectives_under_objects(ref)
-    base = 'find a = token(upos = "ADJ"), o = token(deprel = "obj") where a under o'
+    base = 'find a = word(upos = "ADJ"), o = word(deprel = "obj") where a under o'
     assert _pairs(corpus, base + " show a.cid, o.cid") == anywhere
     assert _pairs(corpus, base + " at depth 1 show a.cid, o.cid") == direct
-    children = _pairs(corpus, 'find a = token(upos = "ADJ"), o = token(deprel = "obj") '
+    children = _pairs(corpus, 'find a = word(upos = "ADJ"), o = word(deprel = "obj") '
                               'where a child of o show a.cid, o.cid')
     assert children == direct
     assert sum(anywhere.values()) > sum(direct.values()) > 0
@@ -193,9 +193,9 @@ def test_adjectives_under_objects_any_depth_and_depth_one(split):
 
 def test_determiners_directly_before_nouns_within_a_sentence(split):
     corpus, ref = split
-    want = sum(1 for s in ref.sentences for a, b in zip(s.words, s.words[1:])
+    want = sum(1 for s in ref.sentences for a, b in zip(s.tokens, s.tokens[1:])
                if a["upos"] == "DET" and b["upos"] == "NOUN")
-    got = _count(corpus, 'find a = token(upos = "DET"), b = token(upos = "NOUN") '
+    got = _count(corpus, 'find a = word(upos = "DET"), b = word(upos = "NOUN") '
                          'where a directly precedes b and a.sent = b.sent count')
     assert got == want > 0
 
@@ -235,10 +235,10 @@ def test_previous_mention_is_the_one_just_before_in_the_text(split):
 
 
 def test_tokens_inside_person_mentions(split):
-    """`inside` from the token layer to the mention layer: one hit per (word, mention) pair."""
+    """`inside` from the word layer to the mention layer: one hit per (token, mention) pair."""
     corpus, ref = split
     want = sum(m.length for m in ref.mentions if m.etype == "person")
-    got = _count(corpus, 'find t = token, m = mention(type = "person") where t inside m count')
+    got = _count(corpus, 'find t = word, m = mention(type = "person") where t inside m count')
     assert got == want > 0
 
 
@@ -246,12 +246,12 @@ def test_tokens_inside_person_mentions(split):
 
 def test_feature_regex_and_attribute_tests(split):
     corpus, ref = split
-    words = [(s, t) for s in ref.sentences for t in s.words]
-    plural = sum(1 for _, t in words if (t["feats"] or {}).get("Number") == "Plur")
-    capital = sum(1 for _, t in words if re.match(r"[A-Z]", t["form"]))
-    spoken = sum(1 for s, _ in words if s.speaker is not None)
-    academic = sum(1 for s, _ in words if s.genre == "academic")
-    assert _count(corpus, 'find t = token(feats.Number = "Plur") count') == plural > 0
-    assert _count(corpus, 'find t = token(form ~ "^[A-Z]") count') == capital > 0
-    assert _count(corpus, "find t = token(sentence.speaker is not missing) count") == spoken > 0
-    assert _count(corpus, 'find t = token(doc.genre = "academic") count') == academic > 0
+    tokens = [(s, t) for s in ref.sentences for t in s.tokens]
+    plural = sum(1 for _, t in tokens if (t["feats"] or {}).get("Number") == "Plur")
+    capital = sum(1 for _, t in tokens if re.match(r"[A-Z]", t["form"]))
+    spoken = sum(1 for s, _ in tokens if s.speaker is not None)
+    academic = sum(1 for s, _ in tokens if s.genre == "academic")
+    assert _count(corpus, 'find t = word(feats.Number = "Plur") count') == plural > 0
+    assert _count(corpus, 'find t = word(form ~ "^[A-Z]") count') == capital > 0
+    assert _count(corpus, "find t = word(sentence.speaker is not missing) count") == spoken > 0
+    assert _count(corpus, 'find t = word(doc.genre = "academic") count') == academic > 0

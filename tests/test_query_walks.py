@@ -43,7 +43,7 @@ def graphs() -> dict[str, object]:
                 if isinstance(tid, tuple) and tid[1] == "-":
                     continue                               # a multiword token line: no relations
                 me = (sid, _cid(tid))
-                layer[me] = "token" if isinstance(tid, int) else "empty"
+                layer[me] = "word" if isinstance(tid, int) else "empty"
                 if isinstance(tid, int) and tok["head"]:
                     basic.add_edge(me, (sid, str(tok["head"])))
                 for rel, head in tok["deps"] or []:
@@ -87,7 +87,7 @@ def test_the_enhanced_graph_of_gum_dev_has_cycles(graphs):
     assert len(cycle) >= 2
 
 
-@pytest.mark.parametrize("la,lb", [("token", "token"), ("token", "empty"), ("empty", "token")])
+@pytest.mark.parametrize("la,lb", [("word", "word"), ("word", "empty"), ("empty", "word")])
 def test_under_via_enhanced_equals_networkx_descendants(corpus, graphs, la, lb):
     want = of_layers(reachable(graphs["enhanced"]), graphs["layer"], la, lb)
     assert want, "the reference found no pairs: the comparison would say nothing"
@@ -95,47 +95,47 @@ def test_under_via_enhanced_equals_networkx_descendants(corpus, graphs, la, lb):
 
 
 def test_above_is_the_inverse_walk(corpus, graphs):
-    want = {(b, a) for a, b in of_layers(reachable(graphs["enhanced"]), graphs["layer"], "token", "token")}
-    assert strata_pairs(corpus, "token", "token", "a above b via enhanced") == want
+    want = {(b, a) for a, b in of_layers(reachable(graphs["enhanced"]), graphs["layer"], "word", "word")}
+    assert strata_pairs(corpus, "word", "word", "a above b via enhanced") == want
 
 
 @pytest.mark.parametrize("depth", [(1, 1), (2, 3), (1, 4)])
 def test_depth_is_the_shortest_walk(corpus, graphs, depth):
     lo, hi = depth
     mod = f"at depth {lo}" if lo == hi else f"at depth {lo}..{hi}"
-    want = of_layers(reachable(graphs["enhanced"], depth), graphs["layer"], "token", "token")
+    want = of_layers(reachable(graphs["enhanced"], depth), graphs["layer"], "word", "word")
     assert want
-    assert strata_pairs(corpus, "token", "token", f"a under b via enhanced {mod}") == want
+    assert strata_pairs(corpus, "word", "word", f"a under b via enhanced {mod}") == want
 
 
 def test_depth_one_is_a_single_edge(corpus, graphs):
-    edges = of_layers(set(graphs["enhanced"].edges), graphs["layer"], "token", "token")
-    assert strata_pairs(corpus, "token", "token", "a under b via enhanced at depth 1") == edges
+    edges = of_layers(set(graphs["enhanced"].edges), graphs["layer"], "word", "word")
+    assert strata_pairs(corpus, "word", "word", "a under b via enhanced at depth 1") == edges
 
 
 @pytest.mark.parametrize("label", ["conj:and", "nmod:of", "nsubj"])
 def test_a_label_restricts_every_edge_walked(corpus, graphs, label):
     only = nx.DiGraph([e for e, rels in graphs["labels"].items() if label in rels])
-    want = of_layers(reachable(only), graphs["layer"], "token", "token")
+    want = of_layers(reachable(only), graphs["layer"], "word", "word")
     assert want
-    assert strata_pairs(corpus, "token", "token", f'a under b via enhanced as "{label}"') == want
+    assert strata_pairs(corpus, "word", "word", f'a under b via enhanced as "{label}"') == want
 
 
 def test_no_node_is_under_itself_even_on_a_cycle(corpus, graphs):
     on_cycles = {n for comp in nx.strongly_connected_components(graphs["enhanced"]) if len(comp) > 1 for n in comp}
     assert on_cycles
-    got = strata_pairs(corpus, "token", "token", "a under b via enhanced")
+    got = strata_pairs(corpus, "word", "word", "a under b via enhanced")
     assert not any(a == b for a, b in got)
     # a node on a cycle reaches the other nodes of its cycle
     some = next(iter(on_cycles))
     assert {b for a, b in got if a == some} >= (nx.descendants(graphs["enhanced"], some) - {some}) & {
-        n for n in on_cycles if graphs["layer"][n] == "token"}
+        n for n in on_cycles if graphs["layer"][n] == "word"}
 
 
 @pytest.mark.parametrize("mod", ["", " at depth 1", " at depth 2..3"])
 def test_walking_the_basic_set_equals_the_tree_numbers(corpus, graphs, mod):
-    walked = strata_pairs(corpus, "token", "token", f"a under b via dep{mod}")
-    numbered = strata_pairs(corpus, "token", "token", f"a under b{mod}")
+    walked = strata_pairs(corpus, "word", "word", f"a under b via dep{mod}")
+    numbered = strata_pairs(corpus, "word", "word", f"a under b{mod}")
     assert walked == numbered
     depth = None if not mod else (1, 1) if mod == " at depth 1" else (2, 3)
     assert walked == reachable(graphs["basic"], depth)
@@ -143,27 +143,27 @@ def test_walking_the_basic_set_equals_the_tree_numbers(corpus, graphs, mod):
 
 def test_a_walk_under_or_and_without(corpus, graphs):
     """The walk is also a subquery test (under `or`, in `without`); same answers as a join."""
-    plain = strata_pairs(corpus, "token", "token", "a under b via enhanced at depth 2")
-    either = strata_pairs(corpus, "token", "token",
+    plain = strata_pairs(corpus, "word", "word", "a under b via enhanced at depth 2")
+    either = strata_pairs(corpus, "word", "word",
                           "a under b via enhanced at depth 2 or a under b via enhanced at depth 2")
     assert either == plain
-    rows = corpus.query("find a = token without b = token where a under b via enhanced "
+    rows = corpus.query("find a = word without b = word where a under b via enhanced "
                         "show a.cid, a.sentence.sent_id", context=0).rows()
     got = {(r["a.sentence.sent_id"], r["a.cid"]) for r in rows}
     g, layer = graphs["enhanced"], graphs["layer"]
-    want = {n for n, l in layer.items() if l == "token"
-            and not any(layer[m] == "token" for m in (nx.descendants(g, n) if n in g else ()))}
+    want = {n for n, l in layer.items() if l == "word"
+            and not any(layer[m] == "word" for m in (nx.descendants(g, n) if n in g else ()))}
     assert got == want
 
 
 # ---- checker ---------------------------------------------------------------------------
 
 def catalog() -> StaticCatalog:
-    token = LayerInfo("token", "token", {"form": AttrInfo("form"), "deprel": AttrInfo("deprel")}, rows=10,
-                      tree=True, token_layer="token", edge_sets=("dep", "enhanced"))
-    span = LayerInfo("chunk", "span", {"kind": AttrInfo("kind")}, rows=5, token_layer="token")
+    word = LayerInfo("word", "sequence", {"form": AttrInfo("form"), "deprel": AttrInfo("deprel")}, rows=10,
+                      tree=True, word_layer="word", edge_sets=("dep", "enhanced"))
+    span = LayerInfo("chunk", "span", {"kind": AttrInfo("kind")}, rows=5, word_layer="word")
     edges = [LayerInfo(n, "edges", {"label": AttrInfo("label")}) for n in ("dep", "enhanced")]
-    return StaticCatalog({l.name: l for l in (token, span, *edges)})
+    return StaticCatalog({l.name: l for l in (word, span, *edges)})
 
 
 def error(text: str) -> StrataError:
@@ -173,17 +173,17 @@ def error(text: str) -> StrataError:
 
 
 def test_an_unknown_edge_set_suggests_the_closest():
-    err = error("find a = token, b = token where a under b via enhancd")
+    err = error("find a = word, b = word where a under b via enhancd")
     assert "unknown edge set 'enhancd'" in err.message
     assert "did you mean: enhanced?" in (err.hint or "")
 
 
 def test_a_walk_may_join_layers_without_tree_columns():
-    text = "find a = chunk, b = token where b above a via enhanced"
+    text = "find a = chunk, b = word where b above a via enhanced"
     checked = check(parse(text), catalog(), text)
     assert checked.query.where.via == "enhanced"
 
 
 def test_a_label_needs_an_edge_set_and_via_needs_a_relation_that_walks():
-    assert "`as` goes with" in error('find a = token, b = token where a under b as "nsubj"').message
-    assert "`via` goes with" in error("find a = token, b = token where a inside b via dep").message
+    assert "`as` goes with" in error('find a = word, b = word where a under b as "nsubj"').message
+    assert "`via` goes with" in error("find a = word, b = word where a inside b via dep").message

@@ -11,18 +11,18 @@ from querylang.parser import parse
 
 
 def catalog() -> StaticCatalog:
-    token = LayerInfo("token", "token", {n: AttrInfo(n) for n in ("form", "lemma", "upos", "deprel", "feats.Number")},
-                      rows=100, tree=True, time=True, token_layer="token", word_layer="word", edge_sets=("dep",))
-    word = LayerInfo("word", "token", {"form": AttrInfo("form")}, rows=90, time=True, word_layer="word",
-                     token_layer="token")
+    word = LayerInfo("word", "sequence", {n: AttrInfo(n) for n in ("form", "lemma", "upos", "deprel", "feats.Number")},
+                      rows=100, tree=True, time=True, word_layer="word", token_layer="token", edge_sets=("dep",))
+    token = LayerInfo("token", "sequence", {"form": AttrInfo("form")}, rows=90, time=True, token_layer="token",
+                     word_layer="word")
     mention = LayerInfo("mention", "span", {"type": AttrInfo("type"), "chain": AttrInfo("chain", "int"),
                                             "chain_pos": AttrInfo("chain_pos", "int"),
                                             "first_mention": AttrInfo("first_mention", "bool")}, rows=10,
-                        token_layer="token", word_layer="word")
+                        word_layer="word", token_layer="token")
     phrase = LayerInfo("phrase", "tree", {"label": AttrInfo("label")}, rows=20, tree=True, readings=True)
     sentence = LayerInfo("sentence", "span", {"speaker": AttrInfo("speaker"), "sent_id": AttrInfo("sent_id")})
     dep = LayerInfo("dep", "edges", {"label": AttrInfo("label")})
-    return StaticCatalog({l.name: l for l in (token, word, mention, phrase, sentence, dep)},
+    return StaticCatalog({l.name: l for l in (word, token, mention, phrase, sentence, dep)},
                          dict(sentence.attrs), {"genre": AttrInfo("genre")})
 
 
@@ -38,7 +38,7 @@ def error(text: str) -> StrataError:
 
 
 def test_names_resolve_to_refs():
-    c = run('find t = token(feats.Number = "Plur", sentence.speaker = "agent", doc.genre = "call") '
+    c = run('find t = word(feats.Number = "Plur", sentence.speaker = "agent", doc.genre = "call") '
             'where t.lemma = "be" show t.text, t.duration')
     conds = c.query.bindings[0].cond.items
     assert conds[0].left == ast.Ref("t", "column", "feats.Number", "str")
@@ -46,7 +46,7 @@ def test_names_resolve_to_refs():
     assert conds[2].left == ast.Ref("t", "doc", "genre", "str")
     assert c.query.where.left == ast.Ref("t", "column", "lemma", "str")
     assert [i.expr.kind for i in c.query.output.items] == ["text", "time"]
-    assert c.layers["t"].name == "token"
+    assert c.layers["t"].name == "word"
 
 
 def test_unknown_layer_suggests():
@@ -56,58 +56,58 @@ def test_unknown_layer_suggests():
 
 
 def test_unknown_attribute_suggests():
-    err = error('find t = token(lemmma = "a")')
+    err = error('find t = word(lemmma = "a")')
     assert "no attribute 'lemmma'" in err.message and "lemma" in err.hint
-    err = error('find t = token where t.feats.Numbr = "Plur"')
+    err = error('find t = word where t.feats.Numbr = "Plur"')
     assert "feats.Number" in err.hint
-    err = error('find t = token(sentence.speakr = "a")')
+    err = error('find t = word(sentence.speakr = "a")')
     assert "speaker" in err.hint
 
 
 def test_unknown_variable_suggests():
-    err = error('find verb = token where verbb.lemma = "go"')
+    err = error('find verb = word where verbb.lemma = "go"')
     assert "unknown variable 'verbb'" in err.message and "verb" in err.hint
 
 
-@pytest.mark.parametrize("text, words", [
-    ('find t = token(form matches "^a") where t.id matches "1"', "regular expression needs a text value"),
-    ('find t = token(form = 3)', "is text but 3 is a number"),
-    ('find t = token(form = "a") where t.duration > 2 words', "does not apply"),
-    ('find t = token where t.form = 20ms', "does not apply"),
-    ('find a = token, b = token where a precedes b and distance(a, b) > 2 s', "does not apply"),
+@pytest.mark.parametrize("text, tokens", [
+    ('find t = word(form matches "^a") where t.id matches "1"', "regular expression needs a text value"),
+    ('find t = word(form = 3)', "is text but 3 is a number"),
+    ('find t = word(form = "a") where t.duration > 2 tokens', "does not apply"),
+    ('find t = word where t.form = 20ms', "does not apply"),
+    ('find a = word, b = word where a precedes b and distance(a, b) > 2 s', "does not apply"),
     ('find m = mention(first_mention = "yes")', "true or false"),
-    ('find t = token(form matches "(")', "bad regular expression"),
+    ('find t = word(form matches "(")', "bad regular expression"),
 ])
-def test_type_mistakes_are_explained(text, words):
-    assert words in str(error(text))
+def test_type_mistakes_are_explained(text, tokens):
+    assert tokens in str(error(text))
 
 
 def test_relations_checked_against_layers():
-    assert "same tree" in error("find a = token, b = phrase where a child of b allow cross product").message
+    assert "same tree" in error("find a = word, b = phrase where a child of b allow cross product").message
     assert "needs a tree" in error("find a = mention, b = mention where a under b").message
-    assert "no coreference" in error("find a = token, b = token where a same entity as b").message
-    assert "no time stamps" in error("find a = mention, b = token where a during b").message
-    assert "at depth" in error("find a = token, b = token where a child of b at depth 2").message
-    assert "in time" in error("find a = token, b = token where a inside b in time").message
-    assert "unknown edge set" in error("find a = token, b = token where a depends on b via depp").message
+    assert "no coreference" in error("find a = word, b = word where a same entity as b").message
+    assert "no time stamps" in error("find a = mention, b = word where a during b").message
+    assert "at depth" in error("find a = word, b = word where a child of b at depth 2").message
+    assert "in time" in error("find a = word, b = word where a inside b in time").message
+    assert "unknown edge set" in error("find a = word, b = word where a depends on b via depp").message
 
 
 def test_cross_product_refused_unless_allowed():
-    err = error('find a = token(upos = "VERB"), b = word(form = "um")')
+    err = error('find a = word(upos = "VERB"), b = token(form = "um")')
     assert "cross product" in err.message and "allow cross product" in err.hint
-    run('find a = token(upos = "VERB"), b = word(form = "um") allow cross product')
-    run('find a = token, b = word where a.form = b.form')          # a join on values relates them
+    run('find a = word(upos = "VERB"), b = token(form = "um") allow cross product')
+    run('find a = word, b = token where a.form = b.form')          # a join on values relates them
 
 
 def test_without_variables_are_scoped():
-    c = run('find v = token without s = token where s depends on v count')
+    c = run('find v = word without s = word where s depends on v count')
     assert set(c.inner_layers[0]) == {"s"}
-    assert "defined twice" in error("find v = token without v = token where v depends on v").message
-    assert "unknown variable 's'" in error("find v = token without s = token where s depends on v show s.form").message
+    assert "defined twice" in error("find v = word without v = word where v depends on v").message
+    assert "unknown variable 's'" in error("find v = word without s = word where s depends on v show s.form").message
 
 
 def test_readings_qualifier_needs_a_readings_layer():
-    assert "alternative readings" in error("find a = token, b = token where a child of b in every reading").message
+    assert "alternative readings" in error("find a = word, b = word where a child of b in every reading").message
     run('find a = phrase, b = phrase where a under b in every reading')
 
 
@@ -115,13 +115,13 @@ def test_first_mention_forms():
     c = run("find m = mention(first mention)")
     assert isinstance(c.query.bindings[0].cond, ast.FirstMention)
     run("find m = mention where m is first mention")
-    assert "coreference" in error("find t = token(first mention)").message
+    assert "coreference" in error("find t = word(first mention)").message
 
 
 def test_edge_set_default_is_dep():
-    c = run("find a = token, b = token where a depends on b")
+    c = run("find a = word, b = word where a depends on b")
     assert c.query.where.via == "dep"
 
 
 def test_comparing_text_with_a_number_column_is_explained():
-    assert "not comparable" in error("find a = token, b = token where a.form = b.id").message
+    assert "not comparable" in error("find a = word, b = word where a.form = b.id").message

@@ -11,10 +11,10 @@ from querylang.pipeline import PASSES, run_passes
 from tests.querylang_corpus import ferry_corpus
 
 HOSTILE = [
-    "x'; DROP TABLE word; --",
-    'a"; DELETE FROM token; --',
+    "x'; DROP TABLE token; --",
+    'a"; DELETE FROM word; --',
     "../../../etc/passwd",
-    "'); COPY word TO '/tmp/stolen.csv'; --",
+    "'); COPY token TO '/tmp/stolen.csv'; --",
     "read_parquet('/etc/shadow')",
     "$1 OR true",
     "\\\\ ; ATTACH 'evil.db'",
@@ -41,9 +41,9 @@ def test_pipeline_is_one_visible_list():
 @pytest.mark.parametrize("value", HOSTILE)
 def test_hostile_strings_become_parameters(corpus, value):
     con, cat = corpus
-    text = (f"find w = word(form = {quoted(value)} or form in [{quoted(value)}] or form matches {quoted(re.escape(value))})"
+    text = (f"find w = token(form = {quoted(value)} or form in [{quoted(value)}] or form matches {quoted(re.escape(value))})"
             f" where w.sentence.speaker != {quoted(value)}")
-    before = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("word", "token")]
+    before = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("token", "word")]
     compiled = compile_query(text, cat)
     assert value not in compiled.sql
     assert string_literals_of(compiled.sql) == []          # no quoted value at all in the SQL text
@@ -51,31 +51,31 @@ def test_hostile_strings_become_parameters(corpus, value):
     hits = run_query(con, cat, text)
     assert len(hits) == 0
     # nothing was dropped or deleted
-    after = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("word", "token")]
+    after = [con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0] for t in ("token", "word")]
     assert after == before and before[0] > 0
 
 
 def test_numbers_units_and_labels_are_parameters(corpus):
     _, cat = corpus
-    compiled = compile_query('find a = token, b = token where a depends on b as "nsubj" and '
-                             'distance(a, b) > 7 words and gap(a, b) < 250ms limit 3', cat)
+    compiled = compile_query('find a = word, b = word where a depends on b as "nsubj" and '
+                             'distance(a, b) > 7 tokens and gap(a, b) < 250ms limit 3', cat)
     assert "nsubj" not in compiled.sql and " 7" not in compiled.sql and "250" not in compiled.sql
     assert {"nsubj", 7, 0.25, 3} <= set(compiled.params)
 
 
 def test_every_identifier_is_quoted_catalog_name_or_generated_alias(corpus):
     _, cat = corpus
-    compiled = compile_query('find np = phrase(label = "NP"), w = word where w inside np show w.feats_missing_ok'
+    compiled = compile_query('find np = phrase(label = "NP"), w = token where w inside np show w.feats_missing_ok'
                              .replace(" show w.feats_missing_ok", " show w.form, w.doc.genre"), cat)
     quoted_names = set(re.findall(r'"((?:[^"]|"")*)"', compiled.sql))
     catalog_names = set(cat.layers()) | {"documents", "doc", "sentence"}
     for info in cat.layers().values():
         catalog_names |= set(info.attrs)
-    catalog_names |= {"id", "doc", "start", "end", "t_start", "t_end", "sent", "ord", "word_first", "word_last",
-                      "tok_first", "tok_last", "parent", "depth", "pre", "post", "reading", "text", "base",
+    catalog_names |= {"id", "doc", "start", "end", "t_start", "t_end", "sent", "ord", "tok_first", "tok_last",
+                      "word_first", "word_last", "parent", "depth", "pre", "post", "reading", "text", "base",
                       "length", "name", "genre", "sent_id", "src", "dst", "label"}
     assert quoted_names <= catalog_names
-    # bare words in the SQL are keywords, functions or generated aliases (v0, w0_1, e0, c3, _x0, ...)
+    # bare tokens in the SQL are keywords, functions or generated aliases (v0, w0_1, e0, c3, _x0, ...)
     unquoted = re.sub(r'"(?:[^"]|"")*"', "", compiled.sql)
     names = set(re.findall(r"[A-Za-z_][A-Za-z_0-9]*", unquoted))
     assert "np" not in names and "w" not in names                  # user variable names never reach SQL
@@ -87,7 +87,7 @@ def test_ident_escapes_double_quotes():
 
 def test_explain_lists_passes_output(corpus):
     con, cat = corpus
-    compiled = compile_query('find s = token(deprel = "nsubj"), v = token where s depends on v count by v.lemma', cat)
+    compiled = compile_query('find s = word(deprel = "nsubj"), v = word where s depends on v count by v.lemma', cat)
     text = compiled.explain_text(con)
     for part in ("variables:", "join order:", "sql:", "parameters:", "$1 = 'nsubj'", "duckdb plan:"):
         assert part in text
@@ -95,33 +95,33 @@ def test_explain_lists_passes_output(corpus):
 
 def test_join_order_starts_from_the_most_selective_variable(corpus):
     _, cat = corpus
-    state = run_passes('find w = word, v = token(lemma = "book") where w inside v', cat)
+    state = run_passes('find w = token, v = word(lemma = "book") where w inside v', cat)
     assert state.plan.order == ("v", "w")
     assert state.plan.estimates["v"] < state.plan.estimates["w"]
 
 
 def test_dependency_through_edge_table_or_tree_columns(corpus):
     con, cat = corpus
-    # word layer: no tree of its own, so the edge set is joined (deduplicated) or tested with EXISTS
-    top = compile_query("find a = word, b = word where a depends on b", cat).sql
-    nested = compile_query("find a = word, b = word where a precedes b and not a depends on b", cat).sql
+    # token layer: no tree of its own, so the edge set is joined (deduplicated) or tested with EXISTS
+    top = compile_query("find a = token, b = token where a depends on b", cat).sql
+    nested = compile_query("find a = token, b = token where a precedes b and not a depends on b", cat).sql
     assert "SELECT DISTINCT" in top and "EXISTS" not in top
     assert "EXISTS" in nested
     # an "or" between relations becomes one join per branch
-    either = compile_query("find a = word, b = word where a depends on b or b depends on a", cat).sql
+    either = compile_query("find a = token, b = token where a depends on b or b depends on a", cat).sql
     assert " UNION " in either and "EXISTS" not in either
-    # token layer carrying the basic tree: parent = head, label = deprel (no edge table needed)
-    tree = compile_query('find a = token, b = token where a depends on b as "nsubj"', cat)
+    # word layer carrying the basic tree: parent = head, label = deprel (no edge table needed)
+    tree = compile_query('find a = word, b = word where a depends on b as "nsubj"', cat)
     assert '"dep"' not in tree.sql and '"parent"' in tree.sql
     edges = {(s, d) for s, d in con.execute('SELECT src, dst FROM "dep" WHERE label = \'nsubj\'').fetchall()}
-    hits = run_query(con, cat, 'find a = token, b = token where a depends on b as "nsubj"').to_arrow()
+    hits = run_query(con, cat, 'find a = word, b = word where a depends on b as "nsubj"').to_arrow()
     assert set(zip(hits.column("a.node").to_pylist(), hits.column("b.node").to_pylist())) == edges
 
 
 def test_names_that_are_sql_keywords_stay_identifiers():
     from tests.querylang_corpus import CorpusBuilder
     b = CorpusBuilder()
-    b.layer("group", "token")
+    b.layer("group", "sequence")
     b.layer("sentence", "span")
     d = b.doc("d", "x y")
     b.node("sentence", d, 0, 3, sent_id="s1")

@@ -9,7 +9,7 @@ from querylang.parser import parse, unquote
 
 
 def test_bindings_conditions_and_show():
-    q = parse('find np = phrase(label = "NP"),\n     um = word(form in ["um", "uh"])\n'
+    q = parse('find np = phrase(label = "NP"),\n     um = token(form in ["um", "uh"])\n'
               'where um inside np\nshow np.text, um.form')
     assert [b.var for b in q.bindings] == ["np", "um"]
     assert q.bindings[0].layer == "phrase"
@@ -21,13 +21,13 @@ def test_bindings_conditions_and_show():
 
 
 def test_comma_inside_binding_means_and():
-    q = parse('find s = token(deprel = "nsubj", upos = "PRON"), v = token where s depends on v count by v.lemma')
+    q = parse('find s = word(deprel = "nsubj", upos = "PRON"), v = word where s depends on v count by v.lemma')
     assert isinstance(q.bindings[0].cond, ast.And) and len(q.bindings[0].cond.items) == 2
     assert q.output == ast.Count((ast.ShowItem(ast.Path(("v", "lemma")), "v.lemma"),))
 
 
 def test_without_clause_and_count():
-    q = parse('find v = token(upos = "VERB")\nwithout s = token(deprel = "nsubj") where s depends on v\ncount')
+    q = parse('find v = word(upos = "VERB")\nwithout s = word(deprel = "nsubj") where s depends on v\ncount')
     assert len(q.withouts) == 1
     w = q.withouts[0]
     assert w.bindings[0].var == "s" and w.cond.name == "depends on"
@@ -36,12 +36,12 @@ def test_without_clause_and_count():
 
 def test_units_functions_and_modifiers():
     q = parse('find a = mention, b = mention(type = "person") '
-              'where a antecedent of b and distance(a, b) > 40 words '
+              'where a antecedent of b and distance(a, b) > 40 tokens '
               'show a.text, b.text, distance(a, b)')
     rel, cmp = q.where.items
     assert rel.name == "antecedent of"
-    assert cmp.left == ast.Func("distance", "a", "b") and cmp.right == ast.Literal(40, "words")
-    q = parse("find a = word, b = word where a meets b within 20ms and gap(a, b) >= 0.25 s")
+    assert cmp.left == ast.Func("distance", "a", "b") and cmp.right == ast.Literal(40, "tokens")
+    q = parse("find a = token, b = token where a meets b within 20ms and gap(a, b) >= 0.25 s")
     assert q.where.items[0].within == ast.Literal(20, "ms")
     assert q.where.items[1].right == ast.Literal(0.25, "s")
 
@@ -55,12 +55,12 @@ def test_multiword_relations_and_qualifiers():
 
 
 def test_dependency_label_and_edge_set():
-    q = parse('find a = token, b = token where a depends on b as "nsubj" via parser.dep')
+    q = parse('find a = word, b = word where a depends on b as "nsubj" via parser.dep')
     assert q.where.label == ast.Literal("nsubj") and q.where.via == "parser.dep"
 
 
 def test_feature_names_with_brackets_and_tests():
-    q = parse('find t = token(feats.Number[psor] is not missing, not lemma matches "^a", misc.X is missing, '
+    q = parse('find t = word(feats.Number[psor] is not missing, not lemma matches "^a", misc.X is missing, '
               'first mention, lemma not in ["a"])')
     items = q.bindings[0].cond.items
     assert items[0] == ast.Missing(ast.Path(("feats", "Number[psor]")), negated=True)
@@ -71,51 +71,51 @@ def test_feature_names_with_brackets_and_tests():
 
 
 def test_boolean_precedence_and_parentheses():
-    q = parse('find a = word(form = "x" or form = "y" and not form = "z")')
+    q = parse('find a = token(form = "x" or form = "y" and not form = "z")')
     cond = q.bindings[0].cond
     assert isinstance(cond, ast.Or) and isinstance(cond.items[1], ast.And)
-    q = parse('find a = word((form = "x" or form = "y") and form = "z")')
+    q = parse('find a = token((form = "x" or form = "y") and form = "z")')
     assert isinstance(q.bindings[0].cond, ast.And)
 
 
 def test_a_variable_may_be_named_like_a_unit_or_keyword_part():
-    q = parse('find s = word, ms = word where s precedes ms')
+    q = parse('find s = token, ms = token where s precedes ms')
     assert [b.var for b in q.bindings] == ["s", "ms"]
 
 
 def test_string_escapes():
     assert unquote(r'"a\"b\\c\nd"') == 'a"b\\c\nd'
-    q = parse(r'find w = word(form = "it\"s")')
+    q = parse(r'find w = token(form = "it\"s")')
     assert q.bindings[0].cond.right.value == 'it"s'
 
 
 def test_aggregates_and_comments():
-    q = parse("find w = word # every word\nmean(w.duration) by w.form")
+    q = parse("find w = token # every token\nmean(w.duration) by w.form")
     assert q.output == ast.Aggregate("mean", ast.ShowItem(ast.Path(("w", "duration")), "mean(w.duration)"),
                                      (ast.ShowItem(ast.Path(("w", "form")), "w.form"),))
 
 
-@pytest.mark.parametrize("text, line, column, words", [
-    ("find x word", 1, 8, '"="'),
-    ("find x = word\nwhere x insde y", 2, 9, "relation"),
-    ('find x = word(form = "a)', 1, 22, "quoted string"),
-    ("find x = word where", 1, 20, "end of the query"),
-    ('find x = word(form = "a"; drop table x)', 1, 25, "';'"),
+@pytest.mark.parametrize("text, line, column, tokens", [
+    ("find x token", 1, 8, '"="'),
+    ("find x = token\nwhere x insde y", 2, 9, "relation"),
+    ('find x = token(form = "a)', 1, 23, "quoted string"),
+    ("find x = token where", 1, 21, "end of the query"),
+    ('find x = token(form = "a"; drop table x)', 1, 26, "';'"),
     ("show x.form", 1, 1, '"find"'),
 ])
-def test_syntax_errors_carry_line_column_and_expectations(text, line, column, words):
+def test_syntax_errors_carry_line_column_and_expectations(text, line, column, tokens):
     with pytest.raises(StrataError) as info:
         parse(text)
     err = info.value
     assert (err.line, err.column) == (line, column)
     assert err.query == text
-    assert words in str(err)
+    assert tokens in str(err)
     assert "expected" in err.message or "unexpected" in err.message
 
 
 def test_caret_is_under_the_error():
     with pytest.raises(StrataError) as info:
-        parse("find x = word\nwhere x insde y")
+        parse("find x = token\nwhere x insde y")
     shown = str(info.value).splitlines()
     assert shown[1] == "  where x insde y"
     assert shown[2] == "  " + " " * 8 + "^"
@@ -127,9 +127,9 @@ def test_empty_query():
 
 
 @pytest.mark.parametrize("text, hint", [
-    ('find w = word(form == "a")', "single ="),
-    ("find w = word(form = 'a')", "double quotes"),
-    ('find w = word(form = "a" && lemma = "b")', "and"),
+    ('find w = token(form == "a")', "single ="),
+    ("find w = token(form = 'a')", "double quotes"),
+    ('find w = token(form = "a" && lemma = "b")', "and"),
 ])
 def test_common_slips_get_a_hint(text, hint):
     with pytest.raises(StrataError) as info:

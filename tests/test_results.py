@@ -73,7 +73,7 @@ def test_pandas_len_and_repr(hits):
 @pytest.mark.parametrize("width", [30, 60, 120])
 def test_render_table_fits_the_width_and_keeps_the_show_column(width):
     con, cat = ferry_corpus()
-    hits = run_query(con, cat, 'find w = word(form = "ferry") show w.sentence.speaker')
+    hits = run_query(con, cat, 'find w = token(form = "ferry") show w.sentence.speaker')
     out = hits.render_table(width)
     lines = out.splitlines()
     assert all(len(line) <= width for line in lines)
@@ -87,5 +87,5 @@ def test_render_table_fits_the_width_and_keeps_the_show_column(width):
 
 def test_render_table_of_an_aggregate():
     con, cat = ferry_corpus()
-    out = run_query(con, cat, "find t = token count by t.upos").render_table(80)
+    out = run_query(con, cat, "find t = word count by t.upos").render_table(80)
     assert out.splitlines()[0].split() == ["t.upos", "count"]

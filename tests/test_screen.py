@@ -13,7 +13,7 @@ from engine import Corpus
 from engine.screen import MISSING
 from tests.conftest import first_gum_sentences
 
-MANY = ('find t = token(upos = "VERB") show t.lemma, t.xpos, t.feats, t.deprel, t.misc, '
+MANY = ('find t = word(upos = "VERB") show t.lemma, t.xpos, t.feats, t.deprel, t.misc, '
         "t.sentence.sent_id")
 
 
@@ -46,7 +46,7 @@ def test_every_show_column_and_every_value_whole(corpus, width):
 
 
 def test_across_cuts_only_the_context_and_marks_it(corpus):
-    query = 'find t = token(upos = "NOUN") show t.lemma'
+    query = 'find t = word(upos = "NOUN") show t.lemma'
     hits = corpus.query(query, limit=20)
     out = hits.render_table(160)
     lines = out.splitlines()
@@ -65,7 +65,7 @@ def test_across_cuts_only_the_context_and_marks_it(corpus):
 
 
 def test_missing_group_keys_say_so(corpus):
-    hits = corpus.query("find t = token count by t.feats.Number")
+    hits = corpus.query("find t = word count by t.feats.Number")
     out = hits.render_table(80)
     none = [r for r in hits.rows() if r["t.feats.Number"] is None]
     assert len(none) == 1
@@ -74,7 +74,7 @@ def test_missing_group_keys_say_so(corpus):
 
 
 def test_rows_past_the_screen_are_counted(corpus):
-    hits = corpus.query("find t = token")
+    hits = corpus.query("find t = word")
     out = hits.render_table(200, max_rows=10)
     assert f"{len(hits) - 10} more hits; use -o FILE or --limit to get them all" in out
     assert out.splitlines()[-1] == f"({len(hits)} hits)"

@@ -85,7 +85,7 @@ def test_layer_figures_on_the_treebank_and_an_incremental_import(tmp_path, monke
     corpus.import_files([gum_file("test")], progress=False, prefix="")
     layers = corpus.store.layers()
     q = corpus.connect()
-    for layer, attrs in (("token", ["form", "lemma", "upos", "deprel", "feats.Number", "misc.SpaceAfter"]),
+    for layer, attrs in (("word", ["form", "lemma", "upos", "deprel", "feats.Number", "misc.SpaceAfter"]),
                          ("sentence", ["sent_id", "s_type", "speaker"]), ("mention", ["entity", "type"])):
         for attr in attrs:
             info = layers[layer].attrs[attr]
@@ -109,7 +109,7 @@ def test_a_catalog_without_part_statistics_gets_them_at_its_next_commit(tmp_path
     for table in ("part_stats", "part_attrs", "part_keys"):
         con.execute(f"DROP TABLE {table}")
     con.close()
-    before = corpus.store.layers()["token"].attrs["upos"]
+    before = corpus.store.layers()["word"].attrs["upos"]
     corpus.import_files([gum_file("test")], progress=False)         # the same layers: all their parts
     con = corpus.store.catalog_connection()
     stated = {p for (p,) in con.execute("SELECT path FROM part_stats").fetchall()}
@@ -117,4 +117,4 @@ def test_a_catalog_without_part_statistics_gets_them_at_its_next_commit(tmp_path
     con.close()
     assert stated == listed
     layers = corpus.store.layers()
-    assert layers["token"].attrs["upos"].n_distinct == before.n_distinct == 17    # UD's 17 UPOS tags
+    assert layers["word"].attrs["upos"].n_distinct == before.n_distinct == 17    # UD's 17 UPOS tags

@@ -2,5 +2,5 @@
 
 
 def run(layers):
-    t = layers.read("token", ["upos", "lemma"])
+    t = layers.read("word", ["upos", "lemma"])
     return t[t.upos == "VERB"].groupby("lemma", dropna=False).size().reset_index()

@@ -1,2 +1,2 @@
 -- Hand-written reference for 01_verbs_by_lemma.
-SELECT lemma, count(*) FROM token WHERE upos = 'VERB' GROUP BY lemma
+SELECT lemma, count(*) FROM word WHERE upos = 'VERB' GROUP BY lemma

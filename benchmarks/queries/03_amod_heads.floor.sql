@@ -1,2 +1,2 @@
 -- Scan floor for 03_amod_heads: one pass over the columns it must read.
-SELECT count(*), sum(hash(id, parent, deprel, upos)) FROM token
+SELECT count(*), sum(hash(id, parent, deprel, upos)) FROM word

@@ -4,7 +4,7 @@ then the span test."""
 
 def run(layers):
     np_ = layers.read("tree", ["cat", "func", "sent", "start", "end"])
-    t = layers.read("token", ["upos", "sent", "start", "end"])
+    t = layers.read("word", ["upos", "sent", "start", "end"])
     np_ = np_[(np_.cat == "NP") & (np_.func == "SBJ")]
     t = t[t.upos == "PRON"]
     pairs = np_.merge(t, on="sent", suffixes=("_np", "_t"))

@@ -1,3 +1,3 @@
 -- NOT EXISTS over span inclusion.
 SELECT count(*) FROM sentence s
-WHERE NOT EXISTS (SELECT 1 FROM token t WHERE t.upos = 'AUX' AND s.start <= t.start AND t."end" <= s."end")
+WHERE NOT EXISTS (SELECT 1 FROM word t WHERE t.upos = 'AUX' AND s.start <= t.start AND t."end" <= s."end")

@@ -1,2 +1,2 @@
 -- Scan floor for 13_filler_near_noun: one pass over the columns it must read.
-SELECT count(*), sum(hash(upos, doc, start, "end", word_first, word_last)) FROM token
+SELECT count(*), sum(hash(upos, doc, start, "end", tok_first, tok_last)) FROM word

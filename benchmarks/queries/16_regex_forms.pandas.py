@@ -2,6 +2,6 @@
 
 
 def run(layers):
-    t = layers.read("token", ["form", "upos"])
+    t = layers.read("word", ["form", "upos"])
     hit = t.form.str.contains(r"^[a-z]+(?:ed|ing)$", regex=True, na=False)
     return t[hit].groupby("upos", dropna=False).size().reset_index()

@@ -1,2 +1,2 @@
 -- DuckDB's regexp_matches finds the pattern anywhere; the anchors make it a whole-form match.
-SELECT upos, count(*) FROM token WHERE regexp_matches(form, '^[a-z]+(ed|ing)$') GROUP BY upos
+SELECT upos, count(*) FROM word WHERE regexp_matches(form, '^[a-z]+(ed|ing)$') GROUP BY upos

@@ -24,12 +24,13 @@ def export(store: Store, out: TextIO, layer_prefix: str = "") -> int:
     """Write every sentence of the layers under ``layer_prefix``; returns the sentence count."""
     L = (lambda n: f"{layer_prefix}.{n}") if layer_prefix else (lambda n: n)
     layers = store.layers()
-    if L("token") not in layers or L("sentence") not in layers:
-        known = sorted({n.rsplit(".", 1)[0] for n in layers if n.endswith(".token")})
+    if L("word") not in layers or L("sentence") not in layers:
+        known = sorted({n.rsplit(".", 1)[0] for n in layers if n.endswith(".word")})
         hint = f" (prefixes with CoNLL-U layers: {', '.join(known)})" if known else ""
-        raise StrataError(f"no CoNLL-U layers {L('token')!r} and {L('sentence')!r} in this corpus{hint}")
+        raise StrataError(f"no CoNLL-U layers {L('word')!r} and {L('sentence')!r} in this corpus{hint}")
     con = store.connect()
-    tok, sent, word, empty = (_q(L(n)) for n in ("token", "sentence", "word", "empty"))
+    # syntactic words (layer ``word``) give the word lines, surface tokens (``token``) the ranges
+    tok, sent, word, empty = (_q(L(n)) for n in ("word", "sentence", "token", "empty"))
     f = "coalesce({}, '_')"
     token_line = ("cid || chr(9) || form || chr(9) || lemma || chr(9) || " + f.format("upos") + " || chr(9) || "
                   + f.format("xpos") + " || chr(9) || " + f.format("feats") + " || chr(9) || "

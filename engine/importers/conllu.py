@@ -10,8 +10,8 @@ the dependency trees, and DuckDB pairs entity brackets and pivots comments. A fi
 is read in blocks that end at a ``# newdoc`` line, so memory stays bounded by the
 block size (or the largest document).
 
-Layers written (see DEVELOPERS.md): ``token`` (syntactic words, with the dependency
-tree as tree columns), ``word`` (surface tokens: a multiword token once), ``empty``
+Layers written (see DEVELOPERS.md), named as CoNLL-U names them: ``word`` (syntactic words,
+with the dependency tree as tree columns), ``token`` (surface tokens: a multiword token once), ``empty``
 (empty nodes), ``sentence``, ``mention``; edge sets ``dep`` and ``enhanced``. The
 primary text of a document is its surface tokens, each followed by a space unless
 ``SpaceAfter=No``, with sentences joined by a newline.
@@ -139,8 +139,11 @@ class ConlluImporter:
         self.con = duckdb.connect()
         self.con.execute("SET python_enable_replacements = false")
         self.con.execute("SET enable_progress_bar = false")
-        self.tok_ord = self._from_layer(self.names["token"], "coalesce(max(ord) + 1, 0)", 0)
-        self.word_ord = self._from_layer(self.names["word"], "coalesce(max(ord) + 1, 0)", 0)
+        # Inside this module ``tok``/``W`` are the syntactic words (layer ``word``, columns
+        # ``word_first/last``) and ``word``/``U`` the surface tokens (layer ``token``, columns
+        # ``tok_first/last``): the names of the arrays predate the layers' CoNLL-U names.
+        self.tok_ord = self._from_layer(self.names["word"], "coalesce(max(ord) + 1, 0)", 0)
+        self.word_ord = self._from_layer(self.names["token"], "coalesce(max(ord) + 1, 0)", 0)
         self.order = int(batch.store.meta("next_order") or 0)
         files = self._files(self.names["sentence"])
         self.seen_ids: dict[str, str] = {}
@@ -148,7 +151,7 @@ class ConlluImporter:
             for (sid,) in self.con.execute("SELECT sent_id FROM read_parquet(?, union_by_name = true) "
                                            "WHERE sent_id IS NOT NULL", [files]).fetchall():
                 self.seen_ids[sid] = "the corpus"
-        self.docs_with_tokens = {r[0] for r in self._rows(self.names["token"], "SELECT DISTINCT doc FROM {}")}
+        self.docs_with_tokens = {r[0] for r in self._rows(self.names["word"], "SELECT DISTINCT doc FROM {}")}
         self.known_docs = {d.name: d for d in batch.store.documents()}
         self.n_part = 0
         # the number of the block being imported, and whether blocks come in descending order
@@ -185,15 +188,15 @@ class ConlluImporter:
                   "sentence_layer": n["sentence"], "separate": False}
         # FEATS and MISC stay one column each; the store derives feats.KEY and misc.KEY from them
         kv = {"key_value": ["feats", "misc"]}
-        self.key_value = {n["token"]: kv["key_value"], n["empty"]: kv["key_value"], n["word"]: ["misc"]}
-        self.batch.declare_layer(n["token"], "token", {**common, **kv, "tree": True,
+        self.key_value = {n["word"]: kv["key_value"], n["empty"]: kv["key_value"], n["token"]: ["misc"]}
+        self.batch.declare_layer(n["word"], "sequence", {**common, **kv, "tree": True,
                                                        "edge_sets": [n["dep"], n["enhanced"]]})
-        self.batch.declare_layer(n["word"], "token", {**common, "key_value": ["misc"]})
-        self.batch.declare_layer(n["empty"], "token", {**common, **kv})
+        self.batch.declare_layer(n["token"], "sequence", {**common, "key_value": ["misc"]})
+        self.batch.declare_layer(n["empty"], "sequence", {**common, **kv})
         self.batch.declare_layer(n["sentence"], "span", {**common, "separate": True})
         self.batch.declare_layer(n["mention"], "span", {**common, "coreference": True})
-        self.batch.declare_layer(n["dep"], "edges", {"nodes": n["token"]})
-        self.batch.declare_layer(n["enhanced"], "edges", {"nodes": n["token"]})
+        self.batch.declare_layer(n["dep"], "edges", {"nodes": n["word"]})
+        self.batch.declare_layer(n["enhanced"], "edges", {"nodes": n["word"]})
 
     # -- files and blocks ----------------------------------------------------------------
     def import_file(self, path: Path) -> None:
@@ -359,7 +362,7 @@ class ConlluImporter:
         for name, line in names or [(self.path.stem, self.first_line)]:
             existing = self.known_docs.get(name)
             if existing is not None and existing.doc in self.docs_with_tokens:
-                raise StrataError(f"document {name!r} already has a {self.names['token']!r} layer; import a second "
+                raise StrataError(f"document {name!r} already has a {self.names['word']!r} layer; import a second "
                                   "annotation of it with --prefix NAME", file=str(self.path), line=line)
 
     # -- checks ----------------------------------------------------------------------------
@@ -644,8 +647,8 @@ class ConlluImporter:
         seg_u_first = np.searchsorted(u_seg, np.arange(n_sent))
         seg_u_last = np.searchsorted(u_seg, np.arange(n_sent), side="right") - 1
         self.S = dict(id=self.id_sent + np.arange(n_sent), doc=doc_u[seg_u_first], start=self.U["start"][seg_u_first],
-                      end=self.U["end"][seg_u_last], tok_first=tok_ord[seg_w_first], tok_last=tok_ord[seg_w_last],
-                      word_first=word_ord[seg_u_first], word_last=word_ord[seg_u_last],
+                      end=self.U["end"][seg_u_last], word_first=tok_ord[seg_w_first], word_last=tok_ord[seg_w_last],
+                      tok_first=word_ord[seg_u_first], tok_last=word_ord[seg_u_last],
                       s=self.s[self.seg_starts], line=self.n[self.seg_starts])
         # each sentence rebuilt from its units (the bytes of ``joined``, less the final newline),
         # to check "# text" against in one comparison
@@ -830,8 +833,8 @@ class ConlluImporter:
         wr = pa.array(W["rows"])
         n_tok = len(W["rows"])
         tok = {"id": self.id_tok + np.arange(n_tok), "doc": W["doc"], "start": W["start"], "end": W["end"],
-               "sent": W["sent"], "tok_first": W["ord"], "tok_last": W["ord"], "word_first": W["word"],
-               "word_last": W["word"], "ord": W["ord"]}
+               "sent": W["sent"], "word_first": W["ord"], "word_last": W["ord"], "tok_first": W["word"],
+               "tok_last": W["word"], "ord": W["ord"]}
         for name in ("cid", "form"):
             tok[name] = c[name].take(wr)
         tok["lemma"] = self._col("lemma", W["rows"])
@@ -844,7 +847,7 @@ class ConlluImporter:
         tok["parent"] = masked(T["parent"])
         tok["depth"] = pa.array(T["depth"], mask=T["depth"] < 0).cast(pa.int32())
         tok["pre"], tok["post"] = masked(T["pre"]), masked(T["post"])
-        self.report.add("tokens", self._stage(N["token"], pa.table(tok)))
+        self.report.add("words", self._stage(N["word"], pa.table(tok)))
         # surface words
         ur = pa.array(U["rows"])
         is_mwt = U["is_mwt"]
@@ -856,11 +859,11 @@ class ConlluImporter:
             pa.array(at, mask=~is_mwt))
         null_str = pa.scalar(None, pa.string())
         word = {"id": self.id_word + np.arange(len(U["rows"])), "doc": U["doc"], "start": U["start"], "end": U["end"],
-                "sent": U["sent"], "tok_first": U["tok_first"], "tok_last": U["tok_last"], "word_first": U["ord"],
-                "word_last": U["ord"], "ord": U["ord"], "cid": c["cid"].take(ur), "form": c["form"].take(ur),
+                "sent": U["sent"], "word_first": U["tok_first"], "word_last": U["tok_last"], "tok_first": U["ord"],
+                "tok_last": U["ord"], "ord": U["ord"], "cid": c["cid"].take(ur), "form": c["form"].take(ur),
                 "mwt": pa.array(is_mwt), "mwt_fields": mwt_fields,
                 "misc": pc.if_else(pa.array(is_mwt), nul(c["misc"].take(ur)), null_str)}
-        self.report.add("words", self._stage(N["word"], pa.table(word)))
+        self.report.add("tokens", self._stage(N["token"], pa.table(word)))
         self.report.add("multiword tokens", int(is_mwt.sum()))
         # empty nodes
         er = pa.array(E["rows"])
@@ -984,8 +987,8 @@ class ConlluImporter:
         chain_pos = np.empty(n, np.int64)
         chain_pos[in_chain] = pos_sorted
         cols = {"id": ids, "doc": tok["doc"][w0], "start": start, "end": end, "sent": tok["sent"][w0],
-                "tok_first": tok["ord"][w0], "tok_last": tok["ord"][w1], "word_first": tok["word_first"][w0],
-                "word_last": tok["word_first"][w1], "entity": entity, "chain": chain, "chain_pos": chain_pos,
+                "word_first": tok["ord"][w0], "word_last": tok["ord"][w1], "tok_first": tok["tok_first"][w0],
+                "tok_last": tok["tok_first"][w1], "entity": entity, "chain": chain, "chain_pos": chain_pos,
                 "first_mention": pa.array(chain_pos == 0)}
         cols.update(self._entity_fields(M))
         table = pa.table(cols).take(pa.array(by_pos))

@@ -37,7 +37,7 @@ def _anchor(options: ImportOptions, batch: Batch) -> tuple[str, str | None]:
     kind, sep, layer = value.partition(":")
     if kind == "tokens" and sep and layer:
         if layer not in batch.store.layers():
-            known = ", ".join(n for n, i in batch.store.layers().items() if i.kind == "token") or "none"
+            known = ", ".join(n for n, i in batch.store.layers().items() if i.kind == "sequence") or "none"
             raise StrataError(f"--anchor tokens:{layer}: no layer {layer!r} in the corpus (token layers: {known})")
         return "tokens", layer
     raise StrataError(f"--anchor {value!r}: use chars, tokens:LAYER or time")

@@ -213,7 +213,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         tier, layer = tier_names[t], layer_of[tier_names[t]]
         words = tier in WORD_TIERS
         ords[layer] = next_ord(batch.store, layer)
-        batch.declare_layer(layer, "token" if words else "span",
+        batch.declare_layer(layer, "sequence" if words else "span",
                             {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words, "tier": tier,
                              "sentence_layer": SENTENCE_LAYER, "separate": False})
         sel = order[t_sorted == t]          # still by document, then (start, end)
@@ -224,7 +224,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         filled = fill_new_rows(batch, table, exclude={layer} if words else set())
         if filled is None:
             unfinished.append(layer)
-        batch.write_nodes(layer, "token" if words else "span", table if filled is None else filled)
+        batch.write_nodes(layer, "sequence" if words else "span", table if filled is None else filled)
         if parts:
             alignments[layer] = parts
         report.add(f"{tier} rows", table.num_rows)
