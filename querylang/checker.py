@@ -52,9 +52,23 @@ class Checked:
     text: str = ""
 
 
+#: names a query uses for stored columns: CoNLL-U's own words for its ID and HEAD (``id`` is the
+#: CoNLL-U ID, see :func:`columns_of`), and ``node`` for strata's internal node number
+QUERY_NAMES = {"node": "id", "head": "head_num"}
+
+
 def columns_of(layer: LayerInfo) -> dict[str, str]:
-    """Every column a query may name on this layer, with its type."""
-    cols = dict(ANCHOR_COLUMNS)
+    """Every column a query may name on this layer, with its type (query names, see QUERY_NAMES).
+
+    ``id`` is the CoNLL-U ID where the layer has one: a number on syntactic words (the layer with
+    the dependency tree, whose IDs are integers), text elsewhere (``1-2``, ``9.1``).  The
+    internal node number is ``node``, so nobody takes it for a word's ID.
+    """
+    cols = {("node" if k == "id" else k): t for k, t in ANCHOR_COLUMNS.items()}
+    if "cid" in layer.attrs:
+        cols["id"] = "int" if layer.tree else "str"
+    if "head_num" in layer.attrs:
+        cols["head"] = "int"
     if layer.kind == "sequence":
         cols["ord"] = "int"
     if layer.tree:
@@ -136,8 +150,10 @@ class _Checker:
             return self._extra(var, "doc", ".".join(parts[1:]), self.catalog.doc_attrs(), pos, written)
         name = ".".join(parts)
         cols = columns_of(layer)
+        if name == "id" and name in cols:
+            return ast.Ref(var, "conllu_id", "cid", cols[name], pos, written)
         if name in cols:
-            return ast.Ref(var, "column", name, cols[name], pos, written)
+            return ast.Ref(var, "column", QUERY_NAMES.get(name, name), cols[name], pos, written)
         if name in DERIVED:
             kind, typ = DERIVED[name]
             if kind == "time" and not layer.time:
@@ -150,6 +166,8 @@ class _Checker:
             where = (f"layer {elsewhere[0]!r}" if len(elsewhere) == 1 else
                      "layers " + ", ".join(repr(n) for n in elsewhere[:4]))
             hint = f"{name!r} is an attribute of {where}" + ("" if not hint else f"; {hint}")
+        if name == "id":
+            hint = f"layer {layer.name!r} has no CoNLL-U ID; strata's own node number is {var}.node"
         self.fail(f"layer {layer.name!r} has no attribute {name!r}", pos, hint)
         raise AssertionError
 

@@ -134,6 +134,8 @@ class SqlBuilder:
         a = scope.aliases[e.var]
         if e.kind == "column":
             return self.col(a, e.name)
+        if e.kind == "conllu_id":   # integers on syntactic words: compare as numbers
+            return f"TRY_CAST({self.col(a, 'cid')} AS BIGINT)" if e.type == "int" else self.col(a, "cid")
         if e.kind == "sentence":
             self.need(a, "sentence")
             return f"{a}_s.{ident(e.name)}"

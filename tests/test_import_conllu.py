@@ -235,3 +235,38 @@ def test_layer_names_follow_the_standard(gum_corpora, split):
     assert corpus.query('find x = word(upos = "VERB") count').rows() == [{"count": verbs}]
     assert corpus.query("find x = token count").rows() == [{"count": surface}]
     assert surface == PUBLISHED[split]["tokens"] and verbs > 1000
+
+
+@pytest.mark.parametrize("split", ["dev", "test"])
+def test_id_and_head_are_the_conllu_columns(gum_corpora, split):
+    """`id` is the CoNLL-U ID (a number on words, so `id <= 2` compares numbers; `1-2` on a
+    multiword token) and `head` the HEAD column; counted here with the `conllu` library."""
+    corpus, _, path = gum_corpora[split]
+    first_two = roots = ranges = 0
+    heads: dict[tuple[str, int], int] = {}
+    with open(path, encoding="utf-8") as f:
+        for sentence in conllu.parse_incr(f):
+            for t in sentence:
+                if isinstance(t["id"], int):
+                    first_two += t["id"] <= 2
+                    roots += t["head"] == 0
+                    heads[sentence.metadata["sent_id"], t["id"]] = t["head"]
+                elif t["id"][1] == "-":
+                    ranges += 1
+    count = lambda q: corpus.query(q).rows()[0]["count"]
+    assert count("find w = word(id <= 2) count") == first_two     # as text, "10" <= "2" would hold
+    assert count("find w = word(head = 0) count") == roots
+    assert count('find t = token(id ~ "^[0-9]+-[0-9]+$") count') == ranges == PUBLISHED[split]["multiword tokens"]
+    listed = corpus.query('find w = word(upos = "ADJ") show w.id, w.head', limit=300).rows()
+    assert len(listed) == 300
+    assert all(heads[r["w.sentence"], r["w.id"]] == r["w.head"] and r["w.conllu_id"] == str(r["w.id"])
+               for r in listed)
+
+
+def test_id_of_a_layer_without_conllu_ids_names_the_node_number(gum_corpora):
+    from engine import StrataError
+    corpus, _, _ = gum_corpora["dev"]
+    with pytest.raises(StrataError) as info:
+        corpus.query("find m = mention(id = 3) count")
+    assert "no CoNLL-U ID" in str(info.value) and "m.node" in str(info.value)
+    assert len(corpus.query("find m = mention(node >= 0)")) == corpus.store.layers()["mention"].rows

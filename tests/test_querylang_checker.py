@@ -70,7 +70,7 @@ def test_unknown_variable_suggests():
 
 
 @pytest.mark.parametrize("text, tokens", [
-    ('find t = word(form matches "^a") where t.id matches "1"', "regular expression needs a text value"),
+    ('find t = word(form matches "^a") where t.node matches "1"', "regular expression needs a text value"),
     ('find t = word(form = 3)', "is text but 3 is a number"),
     ('find t = word(form = "a") where t.duration > 2 tokens', "does not apply"),
     ('find t = word where t.form = 20ms', "does not apply"),
@@ -124,4 +124,4 @@ def test_edge_set_default_is_dep():
 
 
 def test_comparing_text_with_a_number_column_is_explained():
-    assert "not comparable" in error("find a = word, b = word where a.form = b.id").message
+    assert "not comparable" in error("find a = word, b = word where a.form = b.node").message
