@@ -183,6 +183,15 @@ def _query_text(text: Optional[str], file: Optional[Path]) -> str:
 
 @app.command()
 @user_errors
+def migrate(corpus: Path = typer.Argument(..., help="the corpus folder")) -> None:
+    """Bring a corpus made by an older strata to the current schema (all or nothing)."""
+    from engine.migrate import migrate as run
+    done = run(corpus)
+    out.print(f"migrated {corpus}: " + ", ".join(f"{v} {k}" for k, v in done.items()))
+
+
+@app.command()
+@user_errors
 def explain(
     corpus: Path = typer.Argument(..., help="the corpus folder"),
     text: Optional[str] = typer.Argument(None, help="the query, or - for stdin"),

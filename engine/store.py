@@ -158,8 +158,8 @@ class Store:
             raise StrataError(
                 f"{self.root} was made by an older strata (schema 1), which named the CoNLL-U syntactic "
                 "words 'token' and the surface tokens 'word', the reverse of the standard; strata now "
-                "uses the standard's names. Import the same files into a new corpus: "
-                f"strata init NEW && strata import NEW FILE...; {self.root} is left as it is")
+                f"uses the standard's names. Migrate it with: strata migrate {self.root} (all or nothing), "
+                "or import the same files into a new corpus; until then it is left as it is")
         raise StrataError(f"{self.root} has corpus schema {version!r}, which this strata does not know "
                           f"(it reads schema {SCHEMA_VERSION}); use the strata that made it")
 

@@ -35,7 +35,7 @@ def test_a_new_corpus_has_the_current_schema(tmp_path):
     assert Corpus.create(tmp_path / "c").store.meta("schema_version") == SCHEMA_VERSION
 
 
-@pytest.mark.parametrize("version, says", [("1", "strata init NEW"), ("9", "does not know")])
+@pytest.mark.parametrize("version, says", [("1", "strata migrate"), ("9", "does not know")])
 def test_an_older_or_unknown_schema_is_refused_and_left_alone(tmp_path, version, says):
     path = _with_version(tmp_path, version)
     before = _files(path)

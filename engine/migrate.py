@@ -1,0 +1,139 @@
+"""``strata migrate``: bring a corpus of an older schema to the current one, all or nothing.
+
+Schema 1 named the CoNLL-U syntactic words ``token`` and the surface tokens ``word``, the
+reverse of the CoNLL-U standard, and its ordinal columns followed (``tok_first`` counted
+syntactic words).  Schema 2 swaps both, and calls the layer kind of a segmentation
+``sequence``.  Since node ids, ordinals and anchors are the same under either name, the
+migration renames and rewrites, and computes nothing:
+
+* every CoNLL-U layer pair ``P.token``/``P.word`` swaps names (folders, catalog rows, the
+  ``nodes`` of edge sets, ``anchor = tokens:LAYER`` of span layers);
+* every node part is rewritten with ``tok_first/tok_last`` and ``word_first/word_last``
+  swapped, and props ``token_layer``/``word_layer`` swap keys after the names are mapped
+  (so both again name the layer their columns count);
+* kind ``token`` becomes ``sequence``; ``meta.schema_version`` becomes 2.
+
+The new corpus is built in a hidden folder beside the old one; only when it is complete are
+the folders exchanged (two renames), so a failure or an interrupt leaves the old corpus as it
+was.  A migrated corpus holds the same rows as a fresh import of the same files (tested).
+"""
+from __future__ import annotations
+
+import json
+import os
+import shutil
+from pathlib import Path
+
+import duckdb
+import pyarrow.parquet as pq
+
+from engine.errors import StrataError
+from engine.store import CATALOG_FILE, ROW_GROUP_SIZE, SCHEMA_VERSION, Store, part_write_options
+
+COLUMN_SWAP = {"tok_first": "word_first", "tok_last": "word_last",
+               "word_first": "tok_first", "word_last": "tok_last"}
+
+
+def layer_renames(layers: dict[str, tuple[str, dict]]) -> dict[str, str]:
+    """Old -> new name of every CoNLL-U layer pair (any prefix).
+
+    >>> layer_renames({"token": ("token", {"format": "conllu"}), "word": ("token", {"format": "conllu"}),
+    ...                "p.token": ("token", {"format": "conllu"}), "p.word": ("token", {"format": "conllu"})})
+    {'token': 'word', 'word': 'token', 'p.token': 'p.word', 'p.word': 'p.token'}
+    """
+    out: dict[str, str] = {}
+    for name, (_, props) in layers.items():
+        prefix, _, last = name.rpartition(".")
+        twin = f"{prefix}.word" if prefix else "word"
+        if last == "token" and props.get("format") == "conllu" and layers.get(twin, ("", {}))[1].get("format") == "conllu":
+            out[name], out[twin] = twin, name
+    return out
+
+
+def new_props(props: dict, renames: dict[str, str]) -> dict:
+    """Names mapped, then ``token_layer``/``word_layer`` swapped (see the module docstring)."""
+    def name(v):
+        return renames.get(v, v) if isinstance(v, str) else v
+    out = {k: ([name(x) for x in v] if k == "edge_sets" else name(v)) if k in
+           ("nodes", "token_layer", "word_layer", "sentence_layer", "edge_sets") else v for k, v in props.items()}
+    if "token_layer" in out or "word_layer" in out:
+        tok, word = out.pop("token_layer", None), out.pop("word_layer", None)
+        if word is not None:
+            out["token_layer"] = word
+        if tok is not None:
+            out["word_layer"] = tok
+    anchor = out.get("anchor")
+    if isinstance(anchor, str) and anchor.startswith("tokens:"):
+        out["anchor"] = "tokens:" + name(anchor[len("tokens:"):])
+    return out
+
+
+def migrate(root: str | os.PathLike, *, progress=None) -> dict:
+    """Migrate the corpus at ``root`` to the current schema; returns what was done."""
+    root = Path(root)
+    if not (root / CATALOG_FILE).exists():
+        raise StrataError(f"no corpus at {root}")
+    version = Store(root).meta("schema_version")
+    if version == SCHEMA_VERSION:
+        raise StrataError(f"{root} already has the current schema ({SCHEMA_VERSION}); nothing to do")
+    if version != "1":
+        raise StrataError(f"{root} has corpus schema {version!r}, which this strata cannot migrate")
+    work = root.with_name(f".{root.name}.migrating-{os.getpid()}")
+    old = root.with_name(f".{root.name}.schema1-{os.getpid()}")
+    shutil.rmtree(work, ignore_errors=True)
+    try:
+        summary = _build(root, work, progress)
+    except BaseException:
+        shutil.rmtree(work, ignore_errors=True)
+        raise
+    os.rename(root, old)          # from here the new corpus is complete: exchange the folders
+    os.rename(work, root)
+    shutil.rmtree(old, ignore_errors=True)
+    return summary
+
+
+def _build(root: Path, work: Path, progress) -> dict:
+    work.mkdir()
+    shutil.copy2(root / CATALOG_FILE, work / CATALOG_FILE)
+    con = duckdb.connect(str(work / CATALOG_FILE))
+    try:
+        layers = {n: (k, json.loads(p or "{}")) for n, k, p in con.execute("SELECT name, kind, props FROM layers").fetchall()}
+        renames = layer_renames(layers)
+        parts = con.execute("SELECT layer, path FROM parts ORDER BY path").fetchall()
+        moved: dict[str, str] = {}
+        for i, (layer, path) in enumerate(parts):
+            kind = layers.get(layer, ("", {}))[0]
+            new_layer = renames.get(layer, layer)
+            head, _, file = path.rpartition("/")
+            new_path = f"{head.rpartition('/')[0]}/{new_layer}/{file}" if kind != "edges" else path
+            dest = work / new_path
+            dest.parent.mkdir(parents=True, exist_ok=True)
+            if kind == "edges":
+                shutil.copy2(root / path, dest)
+            else:
+                table = pq.read_table(root / path)
+                table = table.rename_columns([COLUMN_SWAP.get(c, c) for c in table.column_names])
+                pq.write_table(table, dest, row_group_size=ROW_GROUP_SIZE, **part_write_options(table.schema))
+            moved[path] = new_path
+            if progress:
+                progress(i + 1, len(parts))
+        con.execute("BEGIN")
+        for path, new_path in moved.items():
+            for table in ("parts", "part_stats", "part_attrs", "part_keys"):
+                con.execute(f"UPDATE {table} SET path = ? WHERE path = ?", [new_path, path])
+        # one statement per table, so a swap of two names cannot collide with itself
+        con.execute("CREATE TEMP TABLE renames (old VARCHAR, new VARCHAR)")
+        con.executemany("INSERT INTO renames VALUES (?, ?)", list(renames.items()))
+        for table in ("parts", "layer_attrs"):
+            con.execute(f"UPDATE {table} SET layer = renames.new FROM renames WHERE {table}.layer = renames.old")
+        con.execute("DELETE FROM layers")
+        for name, (kind, props) in layers.items():
+            con.execute("INSERT INTO layers (name, kind, props) VALUES (?, ?, ?)",
+                        [renames.get(name, name), "sequence" if kind == "token" else kind,
+                         json.dumps(new_props(props, renames))])
+        con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [SCHEMA_VERSION])
+        con.execute("COMMIT")
+        con.execute("CHECKPOINT")
+    finally:
+        con.close()
+    return {"layers renamed": len(renames), "parts rewritten": len(parts)}
