@@ -26,7 +26,10 @@ COREF_RELATIONS = {"same entity as", "antecedent of", "previous mention of"}
 # Allen (1983): the thirteen interval relations.
 TIME_RELATIONS = {"before", "after", "meets", "met by", "overlaps", "overlapped by", "starts",
                   "started by", "during", "contains", "finishes", "finished by", "equals"}
-TIME_ONLY = TIME_RELATIONS - TEXT_RELATIONS   # the ones that need no "in time"
+# our own, beside Allen's strict ones (querylang/allen.py): "shares time with" is about time
+# only; "inside ... in time" is containment where edges may coincide
+OWN_TIME_RELATIONS = {"shares time with"}
+TIME_ONLY = (TIME_RELATIONS | OWN_TIME_RELATIONS) - TEXT_RELATIONS   # the ones that need no "in time"
 
 TIME_UNITS = {"ms": 0.001, "s": 1.0}
 LENGTH_UNITS = {"words", "tokens", "chars"}
@@ -307,7 +310,7 @@ class _Checker:
         left, right = self.node(rel.left, scope), self.node(rel.right, scope)
         la, lb = scope[left.var], scope[right.var]
         name = rel.name
-        is_time = name in TIME_ONLY or (name in ("overlaps", "contains") and rel.in_time)
+        is_time = name in TIME_ONLY or (name in ("overlaps", "contains", "inside") and rel.in_time)
         if rel.in_time and not is_time:
             self.fail(f"`{name}` is not a time relation; `in time` goes with Allen's relations", rel.pos)
         if rel.depth is not None and name not in ("under", "above"):

@@ -363,6 +363,10 @@ class SqlBuilder:
         def lt(x: str, y: str) -> str:
             return f"{x} < {y} - {tol}" if tol else f"{x} < {y}"
 
+        def le(x: str, y: str) -> str:
+            return f"{x} <= {y} + {tol}" if tol else f"{x} <= {y}"
+        different = f"{self.col(a, 'id')} <> {self.col(b, 'id')}"
+
         forms = {
             "before": [lt(e[a], s[b])],
             "after": [lt(e[b], s[a])],
@@ -376,7 +380,10 @@ class SqlBuilder:
             "contains": [lt(s[a], s[b]), lt(e[b], e[a])],
             "finishes": [eq(e[a], e[b]), lt(s[b], s[a])],
             "finished by": [eq(e[a], e[b]), lt(s[a], s[b])],
-            "equals": [eq(s[a], s[b]), eq(e[a], e[b]), f"{self.col(a, 'id')} <> {self.col(b, 'id')}"],
+            "equals": [eq(s[a], s[b]), eq(e[a], e[b]), different],
+            # our own (querylang/allen.py): containment with shared edges, and any shared stretch
+            "inside": [le(s[b], s[a]), le(e[a], e[b]), different],
+            "shares time with": [lt(s[a], e[b]), lt(s[b], e[a]), different],
         }
         same_recording = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
         return "(" + " AND ".join([same_recording] + forms[name]) + ")"

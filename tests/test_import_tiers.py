@@ -206,3 +206,30 @@ def test_row_order_is_numpy_lexsort_of_group_start_end():
         assert np.array_equal(_sort_by_time(g, s, e), np.lexsort((e, s, g)))
     same = np.zeros(6, dtype=np.int64)                                       # ties keep the file order
     assert _sort_by_time(same, np.zeros(6), np.zeros(6)).tolist() == list(range(6))
+
+
+def test_phones_inside_words_in_time(tmp_path):
+    """Each word's phones tile it, so its first and last phone share its edges: the relation
+    where edges may coincide finds every phone, Allen's strict `during` only the inner ones
+    (Allen 1983), any shared stretch of time every phone again, and Allen's partial `overlaps`
+    none. The counts are made here from the CMU dictionary's phones of each word."""
+    corpus, name, _ = _first_doc(tmp_path)
+    content, tokens = _tiers(corpus, name, 60)
+    path = tmp_path / "a.tiers.tsv"
+    path.write_text(content, encoding="utf-8")
+    corpus.import_files([path], progress=False)
+    n_phones = [len(CMU.get(form.lower(), [["AH0"]])[0]) for form, *_ in tokens]
+    def count(relation: str) -> int:
+        return corpus.query(f"find p = phones, w = spoken where {relation} count").rows()[0]["count"]
+    assert sum(n_phones) > 100
+    assert count("p inside w in time") == sum(n_phones)
+    assert count("p during w") == sum(max(n - 2, 0) for n in n_phones) > 0
+    assert count("p shares time with w") == count("w shares time with p") == sum(n_phones)
+    assert count("p overlaps w in time") == 0
+    # each phone is inside its own word in time, and in no other
+    pairs = corpus.query("find p = phones, w = spoken where p inside w in time show p.start, w.start").rows()
+    starts = [w[3] for w in tokens]
+    owner = {}
+    for p_start in sorted({r["p.start"] for r in pairs}):
+        owner[p_start] = max(s for s in starts if s <= p_start + 1e-9)
+    assert all(abs(r["w.start"] - owner[r["p.start"]]) < 1e-9 for r in pairs) and len(pairs) == sum(n_phones)

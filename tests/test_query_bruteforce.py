@@ -155,6 +155,7 @@ def allen(name: str, a: dict, b: dict, tol: float) -> bool:
         return False
     eq = lambda x, y: abs(x - y) <= tol           # noqa: E731
     lt = lambda x, y: x < y - tol                  # noqa: E731
+    le = lambda x, y: x <= y + tol                 # noqa: E731
     s1, e1, s2, e2 = a["t_start"], a["t_end"], b["t_start"], b["t_end"]
     return {
         "before": lt(e1, s2), "after": lt(e2, s1), "meets": eq(e1, s2), "met by": eq(e2, s1),
@@ -164,6 +165,9 @@ def allen(name: str, a: dict, b: dict, tol: float) -> bool:
         "during": lt(s2, s1) and lt(e1, e2), "contains": lt(s1, s2) and lt(e2, e1),
         "finishes": eq(e1, e2) and lt(s2, s1), "finished by": eq(e1, e2) and lt(s1, s2),
         "equals": eq(s1, s2) and eq(e1, e2) and a["id"] != b["id"],
+        # our own: containment with edges that may coincide, and any shared stretch of time
+        "inside": le(s2, s1) and le(e1, e2) and a["id"] != b["id"],
+        "shares time with": lt(s1, e2) and lt(s2, e1) and a["id"] != b["id"],
     }[name]
 
 
@@ -317,7 +321,7 @@ def check_coreference(c, rel):
 
 
 ALLEN = ["before", "after", "meets", "met by", "overlaps", "overlapped by", "starts", "started by",
-         "during", "contains", "finishes", "finished by", "equals"]
+         "during", "contains", "finishes", "finished by", "equals", "inside", "shares time with"]
 
 
 @SETTINGS

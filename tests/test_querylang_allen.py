@@ -8,7 +8,7 @@ from __future__ import annotations
 import pytest
 from hypothesis import given, strategies as st
 
-from querylang.allen import INVERSE, RELATIONS, holds, relation
+from querylang.allen import INSIDE_IN_TIME, INVERSE, RELATIONS, SHARES_TIME, holds, inside_in_time, relation, shares_time
 
 # small integer end points make equal end points (meets, starts, ...) frequent
 point = st.integers(min_value=0, max_value=8)
@@ -56,3 +56,15 @@ def test_worked_examples(name):
 def test_improper_interval_refused():
     with pytest.raises(ValueError):
         relation((1, 1), (0, 2))
+
+
+# Our own two time relations are unions of Allen's (querylang/allen.py): checked on every pair
+# of small intervals, where shared end points are frequent.
+@given(interval(), interval())
+def test_inside_in_time_is_during_starts_finishes_or_equals(a, b):
+    assert inside_in_time(a, b) == (relation(a, b) in INSIDE_IN_TIME)
+
+
+@given(interval(), interval())
+def test_shares_time_is_every_relation_but_before_after_meets_met_by(a, b):
+    assert shares_time(a, b) == (relation(a, b) in SHARES_TIME) == shares_time(b, a)

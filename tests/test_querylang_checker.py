@@ -88,7 +88,7 @@ def test_relations_checked_against_layers():
     assert "no coreference" in error("find a = word, b = word where a same entity as b").message
     assert "no time stamps" in error("find a = mention, b = word where a during b").message
     assert "at depth" in error("find a = word, b = word where a child of b at depth 2").message
-    assert "in time" in error("find a = word, b = word where a inside b in time").message
+    assert "in time" in error("find a = word, b = word where a precedes b in time").message
     assert "unknown edge set" in error("find a = word, b = word where a depends on b via depp").message
 
 
