@@ -11,7 +11,12 @@ migration renames and rewrites, and computes nothing:
 * every node part is rewritten with ``tok_first/tok_last`` and ``word_first/word_last``
   swapped, and props ``token_layer``/``word_layer`` swap keys after the names are mapped
   (so both again name the layer their columns count);
-* kind ``token`` becomes ``sequence``; ``meta.schema_version`` becomes 2.
+* kind ``token`` becomes ``sequence``.
+
+Schema 2 kept times as binary floating-point seconds; schema 3 keeps whole microseconds.  The
+float of a time read from a decimal text with at most 6 places is the double nearest to it,
+so ``round(t * 10^6)`` gives back that text's microseconds exactly.  A schema-1 corpus gets
+both steps; ``meta.schema_version`` becomes 3.
 
 The new corpus is built in a hidden folder beside the old one; only when it is complete are
 the folders exchanged (two renames), so a failure or an interrupt leaves the old corpus as it
@@ -25,6 +30,8 @@ import shutil
 from pathlib import Path
 
 import duckdb
+import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 from engine.errors import StrataError
@@ -32,6 +39,16 @@ from engine.store import CATALOG_FILE, ROW_GROUP_SIZE, SCHEMA_VERSION, Store, pa
 
 COLUMN_SWAP = {"tok_first": "word_first", "tok_last": "word_last",
                "word_first": "tok_first", "word_last": "tok_last"}
+
+
+def _times_in_microseconds(table: pa.Table) -> pa.Table:
+    """Float seconds -> whole microseconds in ``t_start``/``t_end`` (already integers: kept)."""
+    for name in ("t_start", "t_end"):
+        i = table.schema.get_field_index(name)
+        if i >= 0 and pa.types.is_floating(table.schema.field(i).type):
+            us = pc.cast(pc.round(pc.multiply(table.column(i), 1_000_000.0)), pa.int64())
+            table = table.set_column(i, pa.field(name, pa.int64()), us)
+    return table
 
 
 def layer_renames(layers: dict[str, tuple[str, dict]]) -> dict[str, str]:
@@ -76,13 +93,13 @@ def migrate(root: str | os.PathLike, *, progress=None) -> dict:
     version = Store(root).meta("schema_version")
     if version == SCHEMA_VERSION:
         raise StrataError(f"{root} already has the current schema ({SCHEMA_VERSION}); nothing to do")
-    if version != "1":
+    if version not in ("1", "2"):
         raise StrataError(f"{root} has corpus schema {version!r}, which this strata cannot migrate")
     work = root.with_name(f".{root.name}.migrating-{os.getpid()}")
     old = root.with_name(f".{root.name}.schema1-{os.getpid()}")
     shutil.rmtree(work, ignore_errors=True)
     try:
-        summary = _build(root, work, progress)
+        summary = _build(root, work, progress, rename=version == "1")
     except BaseException:
         shutil.rmtree(work, ignore_errors=True)
         raise
@@ -92,13 +109,13 @@ def migrate(root: str | os.PathLike, *, progress=None) -> dict:
     return summary
 
 
-def _build(root: Path, work: Path, progress) -> dict:
+def _build(root: Path, work: Path, progress, rename: bool) -> dict:
     work.mkdir()
     shutil.copy2(root / CATALOG_FILE, work / CATALOG_FILE)
     con = duckdb.connect(str(work / CATALOG_FILE))
     try:
         layers = {n: (k, json.loads(p or "{}")) for n, k, p in con.execute("SELECT name, kind, props FROM layers").fetchall()}
-        renames = layer_renames(layers)
+        renames = layer_renames(layers) if rename else {}
         parts = con.execute("SELECT layer, path FROM parts ORDER BY path").fetchall()
         moved: dict[str, str] = {}
         for i, (layer, path) in enumerate(parts):
@@ -112,25 +129,34 @@ def _build(root: Path, work: Path, progress) -> dict:
                 shutil.copy2(root / path, dest)
             else:
                 table = pq.read_table(root / path)
-                table = table.rename_columns([COLUMN_SWAP.get(c, c) for c in table.column_names])
+                if rename:
+                    table = table.rename_columns([COLUMN_SWAP.get(c, c) for c in table.column_names])
+                table = _times_in_microseconds(table)
                 pq.write_table(table, dest, row_group_size=ROW_GROUP_SIZE, **part_write_options(table.schema))
             moved[path] = new_path
             if progress:
                 progress(i + 1, len(parts))
         con.execute("BEGIN")
-        for path, new_path in moved.items():
-            for table in ("parts", "part_stats", "part_attrs", "part_keys"):
-                con.execute(f"UPDATE {table} SET path = ? WHERE path = ?", [new_path, path])
+        # paths of two swapped layers trade places: first every moved path to a unique
+        # placeholder, then to its new value, so no step meets a path still in use
+        con.execute("CREATE TEMP TABLE moves (old VARCHAR, new VARCHAR)")
+        changed = [(a, b) for a, b in moved.items() if a != b]
+        if changed:
+            con.executemany("INSERT INTO moves VALUES (?, ?)", changed)
+        for table in ("parts", "part_stats", "part_attrs", "part_keys"):
+            con.execute(f"UPDATE {table} SET path = chr(0) || path WHERE path IN (SELECT old FROM moves)")
+            con.execute(f"UPDATE {table} SET path = moves.new FROM moves WHERE {table}.path = chr(0) || moves.old")
         # one statement per table, so a swap of two names cannot collide with itself
         con.execute("CREATE TEMP TABLE renames (old VARCHAR, new VARCHAR)")
-        con.executemany("INSERT INTO renames VALUES (?, ?)", list(renames.items()))
+        if renames:
+            con.executemany("INSERT INTO renames VALUES (?, ?)", list(renames.items()))
         for table in ("parts", "layer_attrs"):
             con.execute(f"UPDATE {table} SET layer = renames.new FROM renames WHERE {table}.layer = renames.old")
         con.execute("DELETE FROM layers")
         for name, (kind, props) in layers.items():
             con.execute("INSERT INTO layers (name, kind, props) VALUES (?, ?, ?)",
                         [renames.get(name, name), "sequence" if kind == "token" else kind,
-                         json.dumps(new_props(props, renames))])
+                         json.dumps(new_props(props, renames) if rename else props)])
         con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [SCHEMA_VERSION])
         con.execute("COMMIT")
         con.execute("CHECKPOINT")

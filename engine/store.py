@@ -38,8 +38,9 @@ from engine.errors import StrataError
 from querylang.catalog import AttrInfo, LayerInfo
 
 #: 2: the CoNLL-U layers carry the standard's names (``word`` the syntactic words, ``token`` the
-#: surface tokens; in 1 they were the other way round), and so do the ordinal columns
-SCHEMA_VERSION = "2"
+#: surface tokens; in 1 they were the other way round), and so do the ordinal columns.
+#: 3: times are whole microseconds (int64), no longer binary floating-point seconds.
+SCHEMA_VERSION = "3"
 CATALOG_FILE = "catalog.duckdb"
 ROW_GROUP_SIZE = 122_880
 
@@ -60,8 +61,8 @@ ANCHOR_COLUMNS: dict[str, pa.DataType] = {
     "doc": pa.int32(),
     "start": pa.int64(),
     "end": pa.int64(),
-    "t_start": pa.float64(),
-    "t_end": pa.float64(),
+    "t_start": pa.int64(),        # whole microseconds on the recording (importers.tabular.parse_time)
+    "t_end": pa.int64(),
     "sent": pa.int64(),
     "tok_first": pa.int64(),
     "tok_last": pa.int64(),
@@ -154,10 +155,12 @@ class Store:
         version = self.meta("schema_version")
         if version == SCHEMA_VERSION:
             return
-        if version == "1":
+        if version in ("1", "2"):
             raise StrataError(
-                f"{self.root} was made by an older strata (schema 1), which named the CoNLL-U syntactic "
-                "words 'token' and the surface tokens 'word', the reverse of the standard; strata now "
+                f"{self.root} was made by an older strata (schema {version}), which "
+                + ("named the CoNLL-U syntactic words 'token' and the surface tokens 'word', the reverse of "
+                   "the standard, and " if version == "1" else "")
+                + "kept times as binary floating-point seconds; strata now "
                 f"uses the standard's names. Migrate it with: strata migrate {self.root} (all or nothing), "
                 "or import the same files into a new corpus; until then it is left as it is")
         raise StrataError(f"{self.root} has corpus schema {version!r}, which this strata does not know "
@@ -259,6 +262,11 @@ class Store:
         out.update({k: AttrInfo(k, "str", n) for k, n in keys})
         return out
 
+    def durations(self) -> dict[int, int]:
+        """Recording lengths known from earlier imports, in whole µs (the catalog keeps seconds)."""
+        return {doc: round(seconds * 1_000_000) for doc, seconds in
+                self._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL")}
+
     def meta(self, key: str) -> str | None:
         rows = self._rows("SELECT value FROM meta WHERE key = ?", [key])
         return rows[0][0] if rows else None
@@ -332,7 +340,7 @@ class Batch:
         self._next_doc = int(store._rows("SELECT coalesce(max(doc) + 1, 0) FROM documents")[0][0])
         self._finalisers: list = []
         self._replaced: set[str] = set()
-        self._durations: dict[int, float] = {}
+        self._durations: dict[int, int] = {}          # doc -> recording length, whole µs
         self._part_stats: dict[str, part_statistics.PartStats] = {}
 
     # ids and anchors
@@ -400,9 +408,9 @@ class Batch:
         for k, v in attrs.items():
             self._doc_attrs.append((info.doc, k, v))
 
-    def set_duration(self, doc: int, seconds: float) -> None:
-        """Record the length of a document's recording (from its time-aligned tiers)."""
-        self._durations[doc] = seconds
+    def set_duration(self, doc: int, us: int) -> None:
+        """Record the length of a document's recording in whole µs (from its time-aligned tiers)."""
+        self._durations[doc] = int(us)
 
     def add_source(self, path: str, sha256: str) -> None:
         self._sources.append((path, sha256))
@@ -580,8 +588,8 @@ class Batch:
                     con.register("new_documents", docs)
                     con.execute("INSERT INTO documents SELECT doc, name, base, length, text, NULL FROM new_documents")
                     con.unregister("new_documents")
-                for doc, seconds in self._durations.items():
-                    con.execute("UPDATE documents SET duration = ? WHERE doc = ?", [seconds, doc])
+                for doc, us in self._durations.items():   # the catalog column is in seconds, for reading
+                    con.execute("UPDATE documents SET duration = ? WHERE doc = ?", [us / 1_000_000, doc])
                 if self._doc_attrs:
                     attrs = pa.table({"doc": pa.array([a[0] for a in self._doc_attrs], pa.int32()),
                                       "key": [a[1] for a in self._doc_attrs], "value": [a[2] for a in self._doc_attrs]})

@@ -228,14 +228,14 @@ class _Checker:
         if isinstance(cond, ast.Compare):
             left, right = self.expr(cond.left, scope, own), self.expr(cond.right, scope, own)
             self.compatible(left, right, cond.op, cond.pos)
-            return replace(cond, left=left, right=right)
+            return replace(cond, left=_in_seconds(left, right), right=_in_seconds(right, left))
         if isinstance(cond, ast.InList):
             expr = self.expr(cond.expr, scope, own)
             if not cond.values:
                 self.fail("an empty list matches nothing; give at least one value", cond.pos)
             for v in cond.values:
                 self.compatible(expr, v, "in", v.pos)
-            return replace(cond, expr=expr)
+            return replace(cond, expr=expr, values=tuple(_in_seconds(v, expr) for v in cond.values))
         if isinstance(cond, ast.Matches):
             expr = self.expr(cond.expr, scope, own)
             if _type(expr) != "str":
@@ -362,7 +362,10 @@ class _Checker:
         if rel.within is not None and rel.within.unit in ("words", "tokens") and not is_time:
             if _ordinal_columns(la, rel.within.unit) is None or _ordinal_columns(lb, rel.within.unit) is None:
                 self.fail(f"layers {la.name!r} and {lb.name!r} are not counted in {rel.within.unit}", rel.within.pos)
-        return replace(rel, left=left, right=right, via=via, in_time=is_time)
+        within = rel.within
+        if is_time and within is not None and within.unit is None:    # a bare tolerance is in seconds
+            within = replace(within, unit="s")
+        return replace(rel, left=left, right=right, via=via, in_time=is_time, within=within)
 
     def edge_set(self, rel: ast.Relation, la: LayerInfo, lb: LayerInfo) -> str:
         edges = {n: l for n, l in self.all_layers.items() if l.kind == "edges"}
@@ -532,6 +535,19 @@ def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
         if preferred in common:
             return preferred
     return sorted(common)[0] if common else None
+
+
+def _is_time(e: ast.Expr) -> bool:
+    return (isinstance(e, ast.Func) and e.name == "gap") or (isinstance(e, ast.Ref) and e.type == "time")
+
+
+def _in_seconds(value: ast.Expr, other: ast.Expr) -> ast.Expr:
+    """A bare number compared with a time is in seconds: give it the unit, so the compiler
+    turns it into whole microseconds like ``300ms`` or ``0.3s``."""
+    if (isinstance(value, ast.Literal) and value.unit is None and isinstance(value.value, (int, float))
+            and not isinstance(value.value, bool) and _is_time(other)):
+        return replace(value, unit="s")
+    return value
 
 
 def check(query: ast.Query, catalog: Catalog, text: str = "") -> Checked:

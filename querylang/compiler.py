@@ -39,6 +39,7 @@ Definitions the SQL implements (the user-facing semantics):
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from decimal import ROUND_HALF_EVEN, Decimal
 
 from querylang import ast
 from querylang.catalog import LayerInfo
@@ -110,9 +111,10 @@ class SqlBuilder:
 
     # ---- values ---------------------------------------------------------------------
     def literal(self, lit: ast.Literal) -> str:
+        """A bound parameter; a time in ms or s becomes whole microseconds, the unit of the store."""
         value = lit.value
         if lit.unit in TIME_UNITS and not isinstance(value, bool):
-            value = float(value) * TIME_UNITS[lit.unit]
+            value = microseconds(value, lit.unit)
         return self.param(value)
 
     def text_of(self, a: str) -> str:
@@ -154,20 +156,13 @@ class SqlBuilder:
         raise AssertionError(e)
 
     def shown(self, e: ast.Expr, scope: Scope) -> str:
-        """A value for the hit table: like :meth:`expr`, but a difference of two times
-        (``duration``, ``gap``) comes out as the decimal it is, not with the binary noise of
-        the subtraction (1.628 - 0.902 is 0.7259999999999999 in binary floating point).
+        """A value for the hit table: like :meth:`expr`, but a time in seconds.
 
-        Conditions keep :meth:`expr`, so a query compares exactly what hand-written SQL does.
+        Times are whole microseconds in the store and in every condition (exact integer
+        arithmetic); divided by 10^6 only for the hit table, each is the double nearest to
+        its exact decimal, which prints as that decimal (1628000 - 902000 -> 0.726).
         """
-        if isinstance(e, ast.Func) and e.name == "gap":
-            a, b = scope.aliases[e.a], scope.aliases[e.b]
-            return (f"(CASE WHEN {self.col(a, 'doc')} = {self.col(b, 'doc')} "
-                    f"THEN {decimal_difference(self.col(b, 't_start'), self.col(a, 't_end'))} END)")
-        if isinstance(e, ast.Ref) and e.kind == "time" and e.name == "duration":
-            a = scope.aliases[e.var]
-            return decimal_difference(self.col(a, "t_end"), self.col(a, "t_start"))
-        return self.expr(e, scope)
+        return to_seconds(self.expr(e, scope)) if is_time(e) else self.expr(e, scope)
 
     def distance(self, a: str, b: str, la: LayerInfo, lb: LayerInfo, unit: str) -> str:
         same_doc = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
@@ -516,23 +511,31 @@ def kwic_layer(checked: Checked) -> LayerInfo | None:
     return None
 
 
-def decimal_difference(x: str, y: str) -> str:
-    """SQL for ``x - y`` rounded to the 15 significant digits of the larger operand.
-
-    Times are parsed from decimal text; a double keeps 15 significant decimal digits of such a
-    text (DBL_DIG, C standard <float.h>), and the representation and subtraction errors (at
-    most 3 x 2^-53 of the larger operand) stay below half a unit of its 15th digit, so the
-    rounded difference is the double nearest to the exact decimal difference and prints as
-    that decimal (3.0 - 1.814 -> 1.186, not 1.1859999999999999).  Times of 0 fall back to
-    nanosecond precision (the 1e-9 floor).
-    """
-    return (f"round({x} - {y}, CAST(14 - floor(log10(greatest(abs({x}), abs({y}), 1e-9))) AS INTEGER))")
-
-
 def place_columns(layer: LayerInfo) -> list[str]:
     """Stored columns that say where a node is, beyond its document, sentence and characters:
     its CoNLL-U ID (``cid``) where the layer has one, its time span where it has times."""
     return (["cid"] if "cid" in layer.attrs else []) + (["t_start", "t_end"] if layer.time else [])
+
+
+US_PER = {"ms": 1_000, "s": 1_000_000}
+
+
+def microseconds(value, unit: str) -> int:
+    """A time literal as whole microseconds (the decimal as written, half to even below a µs).
+
+    >>> microseconds(0.3, "s"), microseconds(250, "ms"), microseconds(1.186, "s")
+    (300000, 250000, 1186000)
+    """
+    return int((Decimal(str(value)) * US_PER[unit]).to_integral_value(rounding=ROUND_HALF_EVEN))
+
+
+def is_time(e: ast.Expr) -> bool:
+    """Whether the value is a time (start, end, duration, gap): microseconds in SQL."""
+    return (isinstance(e, ast.Func) and e.name == "gap") or (isinstance(e, ast.Ref) and e.kind == "time")
+
+
+def to_seconds(us_sql: str) -> str:
+    return f"({us_sql} / 1000000.0)"
 
 
 def one_line(sb: SqlBuilder, text_sql: str) -> str:
@@ -638,8 +641,11 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
         items = list(out.by)
     elif isinstance(out, ast.Aggregate):
         items = list(out.by) + [out.expr]
+    # an aggregate over times runs on whole microseconds (an exact sum), in seconds only after
+    time_aggregate = isinstance(out, ast.Aggregate) and is_time(out.expr.expr)
     for k, item in enumerate(items):
-        select.append(f"{sb.shown(item.expr, main)} AS _x{k}")
+        raw = time_aggregate and k == len(items) - 1
+        select.append(f"{sb.expr(item.expr, main) if raw else sb.shown(item.expr, main)} AS _x{k}")
     starts = [f"{sb.col(main.aliases[v], 'start')}" for v in variables]
     ends = [f"{sb.col(main.aliases[v], 'end')}" for v in variables]
     select.append(f"least({', '.join(starts)}) AS _hs" if len(starts) > 1 else f"{starts[0]} AS _hs")
@@ -682,7 +688,8 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
         names = [i.label for i in by]
         if isinstance(out, ast.Aggregate):
             fn = {"mean": "avg", "min": "min", "max": "max", "sum": "sum"}[out.func]
-            cols.append(f"{fn}(_x{len(by)}) AS c{len(cols)}")
+            value = f"{fn}(_x{len(by)})"
+            cols.append(f"{to_seconds(value) if time_aggregate else value} AS c{len(cols)}")
             names.append(out.expr.label)
         cols.append(f"count(*) AS c{len(cols)}")
         names.append("count")
@@ -723,7 +730,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
                  f"l._start{i} - {base}", f"l._end{i} - {base}"]
         names += [f"{v}.text", f"{v}.char_start", f"{v}.char_end"]
         if "t_start" in place_columns(layer):
-            cols += [f"l._t_start{i}", f"l._t_end{i}"]
+            cols += [to_seconds(f"l._t_start{i}"), to_seconds(f"l._t_end{i}")]
             names += [f"{v}.start", f"{v}.end"]
         if layer.readings:
             cols.append(f"l._read{i}")

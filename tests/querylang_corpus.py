@@ -147,8 +147,9 @@ class CorpusBuilder:
                 wf, wl = covered(n, spec.token_layer)
                 cols["id"].append(ids[n.key]); cols["doc"].append(n.doc)
                 cols["start"].append(s); cols["end"].append(e)
-                cols["t_start"].append(n.time[0] if n.time else None)
-                cols["t_end"].append(n.time[1] if n.time else None)
+                # stored as the store does: whole microseconds (given here in seconds)
+                cols["t_start"].append(round(n.time[0] * 1_000_000) if n.time else None)
+                cols["t_end"].append(round(n.time[1] * 1_000_000) if n.time else None)
                 cols["sent"].append(None if n.key in self.stale else sentence_of(n) if name != "sentence"
                                     else ids[n.key])
                 cols["word_first"].append(tf); cols["word_last"].append(tl)
@@ -170,7 +171,6 @@ class CorpusBuilder:
                         cols[a].append(n.attrs.get(a))
             types = {"chain": "int", "chain_pos": "int", "first_mention": "bool", **spec.types}
             schema = {c: pa.int64() for c in cols}
-            schema.update({"t_start": pa.float64(), "t_end": pa.float64()})
             for a in attr_names:
                 schema[a] = ARROW_TYPES[types.get(a, "str")]
             table = pa.table({c: pa.array(v, type=schema[c]) for c, v in cols.items()})

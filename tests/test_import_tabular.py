@@ -15,7 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from engine import StrataError
-from engine.importers.tabular import read_columns, times_fast
+from engine.importers.tabular import parse_time, read_columns, times_fast
 
 HEADER = ["doc", "start", "end", "label"]
 CELL = st.text(alphabet=st.sampled_from(list("ab1.5 \u00a0\u3000\"'x-_{}\u00e9")), max_size=6)
@@ -90,12 +90,26 @@ def test_invalid_utf8_is_reported_at_its_line(tmp_path):
     assert e.value.line == 3 and "UTF-8" in str(e.value)
 
 
-@pytest.mark.parametrize("cell", ["1.5", "+2", ".25", "1e3", "0", "1.", "7E-3"])
-def test_column_times_equal_python_float(cell):
-    """Reference: Python's ``float()`` on the same text (correctly rounded, IEEE 754)."""
+@pytest.mark.parametrize("cell", ["1.5", "+2", ".25", "1e3", "0", "1.", "7E-3", "0.1", "123456.789", "1000.001",
+                                  "0.084", "2.000001"])
+def test_times_are_the_exact_microseconds_of_the_text(cell):
+    """Reference: Python's ``decimal`` module, exact decimal arithmetic (General Decimal
+    Arithmetic, IEEE 854): the text's value times 10^6 (10^3 for ms) is whole microseconds.
+    Whichever reader takes the cell (the column reader, or the row reader when the column
+    reader declines it) gives that integer."""
     import pyarrow as pa
-    assert times_fast(pa.array([cell]), "s")[0] == float(cell)
-    assert times_fast(pa.array([cell]), "ms")[0] == float(cell) / 1000.0
+    from decimal import ROUND_HALF_EVEN, Decimal
+    from pathlib import Path
+    for unit, scale in (("s", 10 ** 6), ("ms", 10 ** 3)):
+        fast = times_fast(pa.array([cell]), unit)
+        got = int(fast[0]) if fast is not None else parse_time(cell, unit, Path("x.tsv"), 2, "start")
+        assert got == (Decimal(cell) * scale).to_integral_value(rounding=ROUND_HALF_EVEN), (cell, unit)
+
+
+def test_finer_than_a_microsecond_rounds_half_to_even():
+    from pathlib import Path
+    assert [parse_time(c, "s", Path("x"), 1, "t") for c in ("1.0000005", "1.0000015", "0.0000004")] == \
+        [1_000_000, 1_000_002, 0]
 
 
 @pytest.mark.parametrize("cell", ["nan", "inf", "-1", " 1", "1_0", "abc", ""])

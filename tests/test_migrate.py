@@ -1,5 +1,6 @@
-"""`strata migrate`: a corpus written by the last strata of schema 1 becomes, all or nothing,
-the corpus a fresh import of the same files makes today.
+"""`strata migrate`: a corpus written by the last strata of schema 1 (CoNLL-U layer names the
+other way round) or of schema 2 (floating-point times) becomes, all or nothing, the corpus a
+fresh import of the same files makes today.
 
 The old corpus is written by that strata itself: its source is taken from this repository's
 history (`git archive` of the last commit before the rename) and run in a child process. The
@@ -25,16 +26,19 @@ from engine.migrate import migrate
 from tests.conftest import REPO, first_gum_sentences
 
 LAST_SCHEMA_1 = "8a5af74ccd4b19b7c4a6f94ca2d05afc3a6c37bf"   # the commit before the layer rename
+LAST_SCHEMA_2 = "8dc1e57517405e340c52aa4494f41e1e4e64adbd"   # the commit before whole-microsecond times
+#: (commit, its schema, the anchor it needs for surface-token ordinals)
+OLD = {"1": (LAST_SCHEMA_1, "tokens:word"), "2": (LAST_SCHEMA_2, "tokens:token")}
 
 
-def old_strata(tmp: Path) -> Path:
-    """The source tree of the last schema-1 strata, or skip when the history is not here."""
+def old_strata(tmp: Path, commit: str) -> Path:
+    """The source tree of an older strata, or skip when the history is not here."""
     if shutil.which("git") is None:
         pytest.skip("git is not installed: cannot take the old strata from the history")
-    done = subprocess.run(["git", "-C", str(REPO), "archive", "--format=tar", LAST_SCHEMA_1],
+    done = subprocess.run(["git", "-C", str(REPO), "archive", "--format=tar", commit],
                           capture_output=True, timeout=120)
     if done.returncode != 0:
-        pytest.skip(f"commit {LAST_SCHEMA_1[:8]} is not in this clone (shallow?): migration check skipped")
+        pytest.skip(f"commit {commit[:8]} is not in this clone (shallow?): migration check skipped")
     out = tmp / "old-strata"
     with tarfile.open(fileobj=io.BytesIO(done.stdout)) as tar:
         tar.extractall(out, filter="data")
@@ -60,31 +64,61 @@ def spans_on_tokens(tmp: Path, source: Path) -> Path:
     return path
 
 
-@pytest.fixture(scope="module")
-def corpora(tmp_path_factory):
+def spoken_tier(tmp: Path, source: Path) -> Path:
+    """The first document's surface tokens (no punctuation) as an aligner's words, with times
+    of 3 decimals written as text (floats in schema 1 and 2, whole microseconds now)."""
+    rows, t, doc = [], 0.0, None
+    for sentence in conllu.parse(source.read_text(encoding="utf-8")):
+        if "newdoc id" in sentence.metadata:
+            if doc is not None:
+                break
+            doc = sentence.metadata["newdoc id"]
+        covered: set[int] = set()
+        for tok in sentence:
+            if isinstance(tok["id"], tuple) and tok["id"][1] == "-":
+                covered.update(range(tok["id"][0], tok["id"][2] + 1))
+                rows.append(tok["form"])
+            elif isinstance(tok["id"], int) and tok["id"] not in covered and tok["upos"] != "PUNCT":
+                rows.append(tok["form"])
+    lines = []
+    for i, form in enumerate(rows):
+        d = 0.137 + (i % 5) * 0.061
+        lines.append(f"{doc}\tspoken\t{t:.3f}\t{t + d:.3f}\t{form.lower()}\n")
+        t = round(t + d + (0.2 if i % 4 == 3 else 0.0), 3)
+    path = tmp / "timed.tiers.tsv"
+    path.write_text("doc\ttier\tstart\tend\tlabel\n" + "".join(lines), encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module", params=sorted(OLD), ids=lambda v: f"schema{v}")
+def corpora(tmp_path_factory, request):
     """(migrated corpus, fresh corpus, the CoNLL-U source, an unmigrated copy of the old corpus)."""
     tmp = tmp_path_factory.mktemp("migrate")
     source = first_gum_sentences(tmp, 80)
     spans = spans_on_tokens(tmp, source)
-    old_src = old_strata(tmp)
+    tiers = spoken_tier(tmp, source)
+    commit, anchor = OLD[request.param]
+    old_src = old_strata(tmp, commit)
     old = tmp / "old"
     script = (f"import sys; sys.path.insert(0, {str(old_src)!r})\n"
               "from engine import Corpus\nfrom engine.store import SCHEMA_VERSION\n"
-              "assert SCHEMA_VERSION == '1', SCHEMA_VERSION\n"
+              f"assert SCHEMA_VERSION == {request.param!r}, SCHEMA_VERSION\n"
               f"c = Corpus.create({str(old)!r})\n"
               f"c.import_files([{str(source)!r}], progress=False)\n"
-              f"c.import_files([{str(spans)!r}], anchor='tokens:word', layer='pairs', progress=False)\n")
+              f"c.import_files([{str(spans)!r}], anchor={anchor!r}, layer='pairs', progress=False)\n"
+              f"c.import_files([{str(tiers)!r}], progress=False)\n")
     done = subprocess.run([sys.executable, "-c", script], cwd=old_src, capture_output=True, text=True, timeout=300)
     assert done.returncode == 0, done.stderr
     with pytest.raises(StrataError, match="strata migrate"):
         Corpus.open(old)
-    shutil.copytree(old, tmp / "kept", symlinks=True)       # a schema-1 corpus for the failure test
+    shutil.copytree(old, tmp / "kept", symlinks=True)       # an unmigrated copy for the failure test
     cli = subprocess.run([sys.executable, "-m", "engine.cli", "migrate", str(old)], capture_output=True, text=True)
     assert cli.returncode == 0, cli.stderr
     assert not [p for p in tmp.iterdir() if p.name.startswith(".old.")]     # no folder left behind
     fresh = Corpus.create(tmp / "fresh")
     fresh.import_files([source], progress=False)
     fresh.import_files([spans], anchor="tokens:token", layer="pairs", progress=False)
+    fresh.import_files([tiers], progress=False)
     return old, tmp / "fresh", source, tmp / "kept"
 
 

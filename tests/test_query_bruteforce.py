@@ -330,7 +330,7 @@ def test_allen_relations(c, tol, la, lb):
     mod = f" within {tol}s" if tol else ""
     for rel in ALLEN:
         got = pairs(c, f"find a = {la}, b = {lb} where a {rel} b in time{mod}")
-        assert got == expected(c, la, lb, lambda a, b: allen(rel, a, b, float(tol))), rel
+        assert got == expected(c, la, lb, lambda a, b: allen(rel, a, b, tol * 1_000_000)), rel   # µs
 
 
 @SETTINGS
@@ -381,8 +381,9 @@ ATOMS = [
     ('tag = "p"', lambda n: None if n.get("tag") is None else n["tag"] == "p"),
     ("tag is missing", lambda n: n.get("tag") is None),
     ("tag is not missing", lambda n: n.get("tag") is not None),
-    ("duration >= 2", lambda n: n["t_end"] - n["t_start"] >= 2),
-    ("duration < 2500ms", lambda n: n["t_end"] - n["t_start"] < 2.5),
+    # stored times are whole microseconds (a bare number compared with a time is seconds)
+    ("duration >= 2", lambda n: n["t_end"] - n["t_start"] >= 2_000_000),
+    ("duration < 2500ms", lambda n: n["t_end"] - n["t_start"] < 2_500_000),
     ("char_start > 1", lambda n: n["local_start"] > 1),
     ('text = "a"', lambda n: n["text"] == "a"),
 ]

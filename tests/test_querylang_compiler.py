@@ -60,7 +60,7 @@ def test_numbers_units_and_labels_are_parameters(corpus):
     compiled = compile_query('find a = word, b = word where a depends on b as "nsubj" and '
                              'distance(a, b) > 7 tokens and gap(a, b) < 250ms limit 3', cat)
     assert "nsubj" not in compiled.sql and " 7" not in compiled.sql and "250" not in compiled.sql
-    assert {"nsubj", 7, 0.25, 3} <= set(compiled.params)
+    assert {"nsubj", 7, 250_000, 3} <= set(compiled.params)          # 250 ms as whole microseconds
 
 
 def test_every_identifier_is_quoted_catalog_name_or_generated_alias(corpus):

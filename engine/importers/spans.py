@@ -22,12 +22,11 @@ import pyarrow as pa
 from engine.align.anchor import SENTENCE_LAYER, finalise_new_layer, parquet
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
-from engine.importers.tabular import parse_int, parse_time, read_table, time_unit
+from engine.importers.tabular import parse_int, parse_time, read_table, seconds_text, time_unit
 from engine.store import Batch, DocInfo
 
 FORMAT = "spans"
 REQUIRED = ["doc", "start", "end", "label"]
-EPS = 1e-9
 
 
 def _anchor(options: ImportOptions, batch: Batch) -> tuple[str, str | None]:
@@ -75,7 +74,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     batch.declare_layer(layer, "span", {"format": FORMAT, "anchor": options.extra.get("anchor") or "chars",
                                         "sentence_layer": SENTENCE_LAYER, "separate": False,
                                         **({"time": True, "time_axis": True} if anchor == "time" else {})})
-    durations = dict(batch.store._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL"))
+    durations = batch.store.durations()
     durations.update(batch._durations)
     docs_done: set[int] = set()
     for path in map(Path, paths):
@@ -122,9 +121,9 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
                 if t1 < t0:
                     raise StrataError(f"end {r['end']} is before start {r['start']}", file=str(path), line=line)
                 known = durations.get(info.doc)
-                if known is not None and t1 > known + EPS:
-                    raise StrataError(f"time {t1:g} s is past the end of the recording of {name!r} ({known:g} s)",
-                                      file=str(path), line=line)
+                if known is not None and t1 > known:
+                    raise StrataError(f"time {seconds_text(t1)} s is past the end of the recording of {name!r} "
+                                      f"({seconds_text(known)} s)", file=str(path), line=line)
             cols["id"].append(None)
             cols["doc"].append(info.doc)
             cols["start"].append(start)
@@ -145,8 +144,8 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         if n:
             id0 = batch.alloc_ids(n)
             cols["id"] = list(range(id0, id0 + n))
-            table = pa.table({k: (pa.array(v, pa.int64()) if k in ("start", "end", "tok_first", "tok_last",
-                                                                    "word_first", "word_last") else
+            table = pa.table({k: (pa.array(v, pa.int64()) if k in ("start", "end", "t_start", "t_end", "tok_first",
+                                                                    "tok_last", "word_first", "word_last") else
                                   pa.array(v, pa.string()) if k in attrs or k == "label" else v)
                               for k, v in cols.items()})
             batch.write_nodes(layer, "span", table)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 from dataclasses import dataclass
+from decimal import ROUND_HALF_EVEN, Decimal, InvalidOperation
 from pathlib import Path
 from typing import Iterator
 
@@ -154,27 +155,58 @@ def _read_fast(path: Path, header: list[str], header_line: int) -> Columns | Non
     return Columns(header, table, line_no.astype(np.int64))
 
 
-def parse_time(value: str, unit: str, path: Path, line: int, column: str) -> float:
-    """Seconds from a table cell in ``unit`` (s or ms)."""
+#: Times are stored as whole microseconds (int64), read exactly from the decimal text of a
+#: file: 1.186 s is 1186000 µs, so durations, gaps and comparisons are integer arithmetic and
+#: "a pause of 84 ms" is exactly 84000 µs.  A text finer than a microsecond is rounded to the
+#: nearest (half to even).  Every importer of times reads them through parse_time/times_fast.
+US_PER_SECOND = 1_000_000
+_SCALE = {"s": 6, "ms": 3}            # decimal places that make the unit's text whole microseconds
+
+
+def parse_time(value: str, unit: str, path: Path, line: int, column: str) -> int:
+    """Whole microseconds from a table cell in ``unit`` (s or ms), exact for up to 6 (3) decimals.
+
+    >>> parse_time("1.186", "s", Path("x"), 1, "start"), parse_time("84", "ms", Path("x"), 1, "end")
+    (1186000, 84000)
+    """
     try:
-        t = float(value)
-    except ValueError:
+        t = Decimal(value.strip())
+    except (InvalidOperation, ValueError):
         raise StrataError(f"{column} {value!r} is not a number", file=str(path), line=line) from None
-    if t != t or t in (float("inf"), float("-inf")) or t < 0:
+    if not t.is_finite() or t < 0:
         raise StrataError(f"{column} {value!r} is not a time (a number of {unit} from 0)", file=str(path),
                           line=line)
-    return t / 1000.0 if unit == "ms" else t
+    return int(t.scaleb(_SCALE[unit]).to_integral_value(rounding=ROUND_HALF_EVEN))
 
 
 def times_fast(values: pa.ChunkedArray | pa.Array, unit: str) -> np.ndarray | None:
-    """Seconds from a whole column, or None when a cell is not a time :func:`parse_time` would accept."""
+    """Microseconds from a whole column (int64), or None when a cell is not a plain decimal of at
+    most 6 (3 for ms) places from 0: :func:`parse_time` then reads it, or names the line."""
+    scale = _SCALE[unit]
     try:
-        t = pc.cast(values, pa.float64()).to_numpy()
-    except (pa.ArrowInvalid, pa.ArrowException):
+        dec = pc.cast(values, pa.decimal128(18, scale))
+    except (pa.ArrowInvalid, pa.ArrowException, NotImplementedError):
         return None
-    if not np.all(np.isfinite(t) & (t >= 0)):
+    if isinstance(dec, pa.ChunkedArray):
+        dec = dec.combine_chunks()
+    if dec.null_count:
         return None
-    return t / 1000.0 if unit == "ms" else t
+    # a decimal128's unscaled value is value x 10^scale: whole microseconds; the low 64 bits
+    # hold it (18 digits fit), little-endian as Arrow lays it out
+    us = np.frombuffer(dec.buffers()[1], dtype=np.int64)[2 * dec.offset:2 * (dec.offset + len(dec))][::2].copy()
+    if len(us) and us.min() < 0:
+        return None
+    return us
+
+
+def seconds_text(us: int) -> str:
+    """Whole microseconds as the exact decimal number of seconds (for messages and files).
+
+    >>> seconds_text(1186000), seconds_text(84000), seconds_text(0), seconds_text(123456789000)
+    ('1.186', '0.084', '0', '123456.789')
+    """
+    text = str(Decimal(int(us)).scaleb(-6).normalize())
+    return format(Decimal(text), "f")
 
 
 def parse_int(value: str, path: Path, line: int, column: str) -> int:

@@ -28,7 +28,8 @@ from engine.align.sequence import align_forms
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.stored import docs_with_rows, next_ord
-from engine.importers.tabular import Columns, parse_time, read_columns, read_table, times_fast, time_unit
+from engine.importers.tabular import (Columns, parse_time, read_columns, read_table, seconds_text, times_fast,
+                                      time_unit)
 from engine.store import Batch, DocInfo
 
 FORMAT = "tiers"
@@ -36,8 +37,8 @@ REQUIRED = ["doc", "tier", "start", "end", "label"]
 ALLOWED_RESERVED = {"start", "end", "doc"}
 #: Tiers holding the words a forced aligner wrote: aligned to the text.
 WORD_TIERS = ("spoken", "words")
-#: Tolerance for comparing times read from decimal text (well below a millisecond).
-EPS = 1e-9
+#: Times are whole microseconds (tabular.parse_time): compared exactly.
+EPS = 0
 
 
 @dataclass
@@ -85,9 +86,9 @@ def _times(cols: Columns, path: Path, unit: str) -> tuple[np.ndarray, np.ndarray
     # the row reader accepts what the column reader refused (e.g. spaces around a number)
     lines = cols.lines
     start = np.array([parse_time(v, unit, path, int(n), "start")
-                      for v, n in zip(cols.table.column("start").to_pylist(), lines)], dtype=np.float64)
+                      for v, n in zip(cols.table.column("start").to_pylist(), lines)], dtype=np.int64)
     end = np.array([parse_time(v, unit, path, int(n), "end")
-                    for v, n in zip(cols.table.column("end").to_pylist(), lines)], dtype=np.float64)
+                    for v, n in zip(cols.table.column("end").to_pylist(), lines)], dtype=np.int64)
     return start, end, doc, tier
 
 
@@ -128,8 +129,9 @@ def _codes(values: pa.Array) -> tuple[np.ndarray, list]:
 
 
 def _overlap_message(rows: _Rows, doc: str, tier: str, a: int, b: int) -> StrataError:
-    return StrataError(f"{tier!r} rows overlap in document {doc!r}: {rows.start[b]:g}-{rows.end[b]:g} s starts "
-                       f"before {rows.start[a]:g}-{rows.end[a]:g} s (line {rows.line[a]}) ends; a tier may not "
+    return StrataError(f"{tier!r} rows overlap in document {doc!r}: {seconds_text(rows.start[b])}-"
+                       f"{seconds_text(rows.end[b])} s starts before {seconds_text(rows.start[a])}-"
+                       f"{seconds_text(rows.end[a])} s (line {rows.line[a]}) ends; a tier may not "
                        "overlap itself", **rows.place(b))
 
 
@@ -178,7 +180,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     s_start, s_end = rows.start[by_speaker], rows.end[by_speaker]
     overlap = (key[1:] == key[:-1]) & (s_start[1:] < s_end[:-1] - EPS)
     docs_overlapping = set((key[1:][overlap] // (n_speakers * len(tier_names))).tolist())
-    last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0)
+    last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0, np.int64)
 
     durations = _known_durations(batch)
     layer_of = {t: options.layer(t) for t in tier_names}
@@ -194,9 +196,9 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         if d in docs_overlapping:
             raise _first_overlap(rows, np.sort(idx), name, tier_names, tier_code, speaker_code)
         known = durations.get(info.doc)
-        if known is not None and last_end[d] > known + EPS:
+        if known is not None and last_end[d] > known:
             raise _past_the_end(rows, np.sort(idx), name, known, tier_code)
-        batch.set_duration(info.doc, max(float(last_end[d]), known or 0.0))
+        batch.set_duration(info.doc, max(int(last_end[d]), known or 0))
         here = np.unique(t_sorted[doc_bounds[d]:doc_bounds[d + 1]])
         for t in sorted(here.tolist(), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
             if info.doc in stored[layer_of[tier_names[t]]]:
@@ -262,13 +264,13 @@ def _past_the_end(rows: _Rows, idx: np.ndarray, name: str, known: float, tier_co
     tiers_here, _ = _codes(pa.array(tier_code[idx]))
     pick = idx[np.lexsort((rows.line[idx], rows.end[idx], rows.start[idx], tiers_here))]
     latest = pick[rows.end[pick] == rows.end[pick].max()][0]
-    return StrataError(f"time {rows.end[latest]:g} s is past the end of the recording of {name!r} "
-                       f"({known:g} s, known from an earlier import)", **rows.place(int(latest)))
+    return StrataError(f"time {seconds_text(rows.end[latest])} s is past the end of the recording of {name!r} "
+                       f"({seconds_text(known)} s, known from an earlier import)", **rows.place(int(latest)))
 
 
-def _known_durations(batch: Batch) -> dict[int, float]:
-    """Recording lengths known from earlier imports, read once (a catalog query per document costs ~30 ms)."""
-    return dict(batch.store._rows("SELECT doc, duration FROM documents WHERE duration IS NOT NULL"))
+def _known_durations(batch: Batch) -> dict[int, int]:
+    """Recording lengths (µs) known from earlier imports, read once (a catalog query per document costs ~30 ms)."""
+    return batch.store.durations()
 
 
 def _tier_table(batch: Batch, rows: _Rows, sel: np.ndarray, docs: np.ndarray, infos: list[DocInfo],

@@ -1,0 +1,127 @@
+"""Exact times: every duration and gap from 1 to 2,000 ms compared with the five operators,
+against integer truth: 0 wrong.
+
+The text is the open treebank's first sentences (read in place); a tier table written here puts
+its surface tokens on a time line whose gaps run through 1..2000 ms, and 2,000 pauses whose
+durations are 1..2000 ms, all written as decimal seconds from an offset of 1000 s (where binary
+floating point cannot hold most millisecond values exactly). The truth is the integer number
+of milliseconds each row was written with.
+
+Each operator's query is compiled once by strata; its threshold is a bound parameter, which
+the sweep sets to every value from 1 to 2000 ms (the same SQL and parameters strata runs).
+"""
+from __future__ import annotations
+
+import operator
+import random
+from bisect import bisect_left, bisect_right
+from concurrent.futures import ThreadPoolExecutor
+
+import conllu
+import pytest
+
+from engine import Corpus
+from engine.execute import compile_query
+from tests.conftest import first_gum_sentences
+
+OPS = {"=": operator.eq, "<": operator.lt, "<=": operator.le, ">": operator.gt, ">=": operator.ge}
+N = 2000
+OFFSET_MS = 1_000_000             # 1000 s
+
+
+def text_seconds(ms: int) -> str:
+    return f"{ms // 1000}.{ms % 1000:03d}"
+
+
+@pytest.fixture(scope="module")
+def timed(tmp_path_factory):
+    """(corpus, gaps in ms between consecutive spoken words of one document, pause durations in ms)."""
+    root = tmp_path_factory.mktemp("exact")
+    source = first_gum_sentences(root, 180)
+    docs: dict[str, list[str]] = {}
+    doc = None
+    for sentence in conllu.parse(source.read_text(encoding="utf-8")):
+        doc = sentence.metadata.get("newdoc id", doc)
+        covered: set[int] = set()
+        for t in sentence:
+            if isinstance(t["id"], tuple) and t["id"][1] == "-":
+                covered.update(range(t["id"][0], t["id"][2] + 1))
+                docs.setdefault(doc, []).append(t["form"])
+            elif isinstance(t["id"], int) and t["id"] not in covered and t["upos"] != "PUNCT":
+                docs.setdefault(doc, []).append(t["form"])
+    rows, gaps, k = [], [], 0
+    for name, forms in docs.items():
+        t = OFFSET_MS
+        for i, form in enumerate(forms):
+            if i:
+                gap = k % N + 1
+                k += 1
+                gaps.append(gap)
+                t += gap
+            rows.append(f"{name}\tspoken\t{text_seconds(t)}\t{text_seconds(t + 137)}\t{form.lower()}\n")
+            t += 137
+    assert len(gaps) >= N                                     # every gap from 1 to 2000 ms occurs
+    durations = list(range(1, N + 1))
+    random.Random(7).shuffle(durations)
+    first = next(iter(docs))
+    t = OFFSET_MS + 10_000_000                                # after every word of that document
+    for d in durations:
+        rows.append(f"{first}\tpauses\t{text_seconds(t)}\t{text_seconds(t + d)}\tsil\n")
+        t += d + 3
+    tiers = root / "sweep.tiers.tsv"
+    tiers.write_text("doc\ttier\tstart\tend\tlabel\n" + "".join(rows), encoding="utf-8")
+    corpus = Corpus.create(root / "corpus")
+    corpus.import_files([source], progress=False)
+    corpus.import_files([tiers], progress=False)
+    return corpus, gaps, durations
+
+
+def sweep(corpus: Corpus, template: str, values: list[int]) -> dict[str, int]:
+    """Wrong counts per operator over thresholds 1..N ms (0 everywhere when times are exact);
+    the thresholds run on two cursors at once (DuckDB releases the GIL), half each."""
+    con = corpus._query_connection()
+    ordered = sorted(values)
+    n = len(ordered)
+    # integer truth: how many values stand in each relation to ms (bisect on the sorted values)
+    truth = {"<": lambda ms: bisect_left(ordered, ms), "<=": lambda ms: bisect_right(ordered, ms),
+             "=": lambda ms: bisect_right(ordered, ms) - bisect_left(ordered, ms),
+             ">": lambda ms: n - bisect_right(ordered, ms), ">=": lambda ms: n - bisect_left(ordered, ms)}
+    assert all(truth[op](ms) == sum(1 for v in values if fn(v, ms)) for op, fn in OPS.items() for ms in (1, 999, N))
+    wrong = {}
+    for op in OPS:
+        compiled = compile_query(template.format(op=op, ms=1), corpus.store)
+        at = [i for i, p in enumerate(compiled.params) if p == 1000]       # 1 ms as whole microseconds
+        assert len(at) == 1, compiled.params
+
+        def part(thresholds: range) -> int:
+            cur, params, bad = con.cursor(), list(compiled.params), 0
+            for ms in thresholds:
+                params[at[0]] = ms * 1000
+                got = cur.execute(compiled.sql, params).fetchone()[0]
+                bad += got != truth[op](ms)
+            cur.close()
+            return bad
+        with ThreadPoolExecutor(2) as pool:
+            wrong[op] = sum(pool.map(part, (range(1, N + 1, 2), range(2, N + 1, 2))))
+    return wrong
+
+
+def test_every_duration_from_1_to_2000_ms(timed):
+    corpus, _, durations = timed
+    wrong = sweep(corpus, "find p = pauses where p.duration {op} {ms}ms count", durations)
+    assert wrong == {op: 0 for op in OPS}
+
+
+def test_every_gap_from_1_to_2000_ms(timed):
+    corpus, gaps, _ = timed
+    wrong = sweep(corpus, "find a = spoken, b = spoken where a directly precedes b and gap(a, b) {op} {ms}ms count",
+                  gaps)
+    assert wrong == {op: 0 for op in OPS}
+
+
+def test_durations_print_as_the_decimals_written(timed):
+    corpus, _, durations = timed
+    shown = corpus.query("find p = pauses show p.duration").rows()
+    assert sorted(r["p.duration"] for r in shown) == [d / 1000 for d in range(1, N + 1)]
+    assert {repr(r["p.duration"]) for r in shown} == {repr(d / 1000) for d in durations}
+    assert all(len(repr(r["p.start"])) <= 11 for r in shown)           # e.g. 1010.123, never noise
