@@ -96,7 +96,7 @@ def migrate(root: str | os.PathLike, *, progress=None) -> dict:
     if version not in ("1", "2"):
         raise StrataError(f"{root} has corpus schema {version!r}, which this strata cannot migrate")
     work = root.with_name(f".{root.name}.migrating-{os.getpid()}")
-    old = root.with_name(f".{root.name}.schema1-{os.getpid()}")
+    old = root.with_name(f".{root.name}.schema{version}-{os.getpid()}")
     shutil.rmtree(work, ignore_errors=True)
     try:
         summary = _build(root, work, progress, rename=version == "1")

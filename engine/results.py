@@ -16,20 +16,10 @@ from typing import Any
 import pyarrow as pa
 
 from engine.output_files import replaced_when_done
-from engine.screen import MISSING, render  # noqa: F401  (MISSING: the screen's word for no value)
+from engine.screen import file_cell, render
 
 REPR_ROWS = 10
 TSV_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})
-
-
-def file_cell(value: Any) -> str:
-    """A value as CSV and TSV write it: nothing for a missing value, a float as the shortest
-    decimal that reads back as the same double (Python's repr), everything else as str()."""
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        return repr(value)
-    return str(value)
 
 
 @dataclass

@@ -35,13 +35,19 @@ CONTEXT_MIN = 10      # the narrowest left or right context worth showing across
 SEP = "  "
 
 
-def screen_cell(value) -> str:
-    """A value as the screen shows it: every digit of a number, ``(missing)`` for no value."""
+def file_cell(value) -> str:
+    """A value as CSV and TSV write it: nothing for a missing value, a float as the shortest
+    decimal that reads back as the same double (Python's repr), everything else as str()."""
     if value is None:
-        return MISSING
+        return ""
     if isinstance(value, float):
         return repr(value)
     return str(value)
+
+
+def screen_cell(value) -> str:
+    """A value as the screen shows it: as in a file, but ``(missing)`` for no value."""
+    return MISSING if value is None else file_cell(value)
 
 
 def render(table: pa.Table, kind: str, width: int, max_rows: int | None = 50,
@@ -55,21 +61,21 @@ def render(table: pa.Table, kind: str, width: int, max_rows: int | None = 50,
     names = table.column_names
     columns = _screen_columns(names, kind, shown)
     hidden = [c for c in names if c not in columns]
-    rows = table.to_pylist()
-    listed = rows if max_rows is None else rows[:max_rows]
+    total = table.num_rows
+    listed = (table if max_rows is None else table.slice(0, max_rows)).to_pylist()   # only what is shown
     cells = [[_one_line(screen_cell(r[c])) for c in columns] for r in listed]
     numeric = {c for c, t in zip(names, table.schema.types) if pa.types.is_integer(t) or pa.types.is_floating(t)}
     lines = _across(columns, cells, numeric, width)
     if lines is None:
         lines = _down(columns, [[screen_cell(r[c]) for c in columns] for r in listed], kind, width)
     noun = ("hit", "hits") if kind == "hits" else ("row", "rows")
-    more = len(rows) - len(listed)
+    more = total - len(listed)
     if more:
         lines.append(f"{more} more {noun[more != 1]}; use -o FILE or --limit to get them all")
     if hidden:
         lines += textwrap.wrap(f"not shown here: {', '.join(hidden)} (every column is in -o FILE)", width,
                                break_on_hyphens=False)
-    lines.append(f"({len(rows)} {noun[len(rows) != 1]})")
+    lines.append(f"({total} {noun[total != 1]})")
     return "\n".join(line.rstrip() for line in lines)
 
 

@@ -161,7 +161,7 @@ class Store:
                 + ("named the CoNLL-U syntactic words 'token' and the surface tokens 'word', the reverse of "
                    "the standard, and " if version == "1" else "")
                 + "kept times as binary floating-point seconds; strata now "
-                f"uses the standard's names. Migrate it with: strata migrate {self.root} (all or nothing), "
+                f"uses the standard's names and whole microseconds. Migrate it with: strata migrate {self.root} (all or nothing), "
                 "or import the same files into a new corpus; until then it is left as it is")
         raise StrataError(f"{self.root} has corpus schema {version!r}, which this strata does not know "
                           f"(it reads schema {SCHEMA_VERSION}); use the strata that made it")

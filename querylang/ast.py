@@ -51,7 +51,7 @@ class Ref:
 
     kind: ``column`` (a column of the layer), ``sentence`` / ``doc`` (an attribute of the
     node's sentence or document), ``text`` (covered text), ``time`` (``start``, ``end``,
-    ``duration`` in seconds), ``conllu_id`` (the CoNLL-U ID, a number when ``type`` is int).
+    ``duration``: whole microseconds in SQL, seconds in the hit table), ``conllu_id`` (the CoNLL-U ID, a number when ``type`` is int).
     """
 
     var: str

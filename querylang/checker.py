@@ -537,7 +537,8 @@ def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
     return sorted(common)[0] if common else None
 
 
-def _is_time(e: ast.Expr) -> bool:
+def is_time(e: ast.Expr) -> bool:
+    """Whether the value is a time (start, end, duration, gap): whole microseconds in SQL."""
     return (isinstance(e, ast.Func) and e.name == "gap") or (isinstance(e, ast.Ref) and e.type == "time")
 
 
@@ -545,7 +546,7 @@ def _in_seconds(value: ast.Expr, other: ast.Expr) -> ast.Expr:
     """A bare number compared with a time is in seconds: give it the unit, so the compiler
     turns it into whole microseconds like ``300ms`` or ``0.3s``."""
     if (isinstance(value, ast.Literal) and value.unit is None and isinstance(value.value, (int, float))
-            and not isinstance(value.value, bool) and _is_time(other)):
+            and not isinstance(value.value, bool) and is_time(other)):
         return replace(value, unit="s")
     return value
 

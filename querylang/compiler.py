@@ -34,7 +34,11 @@ Definitions the SQL implements (the user-facing semantics):
 * Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
   the same document (each document has its own recording clock).  ``within T`` is a
   tolerance: two end points are equal when they differ by at most T, and one is before the
-  other when it is more than T earlier.  ``gap(a, b) = b.t_start - a.t_end`` in seconds.
+  other when it is more than T earlier.  Two relations of our own, not strict:
+  ``a inside b in time`` is ``b.t_start <= a.t_start and a.t_end <= b.t_end`` (edges may
+  coincide), ``a shares time with b`` is ``a.t_start < b.t_end and b.t_start < a.t_end``.
+  Times are whole microseconds (exact integers); ``gap(a, b) = b.t_start - a.t_end``, and
+  the hit table shows times in seconds (``to_seconds``).
 """
 from __future__ import annotations
 
@@ -43,7 +47,7 @@ from decimal import ROUND_HALF_EVEN, Decimal
 
 from querylang import ast
 from querylang.catalog import LayerInfo
-from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer
+from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer, is_time
 from querylang.keys import sentence_key_branches
 from querylang.planner import Plan
 
@@ -527,11 +531,6 @@ def microseconds(value, unit: str) -> int:
     (300000, 250000, 1186000)
     """
     return int((Decimal(str(value)) * US_PER[unit]).to_integral_value(rounding=ROUND_HALF_EVEN))
-
-
-def is_time(e: ast.Expr) -> bool:
-    """Whether the value is a time (start, end, duration, gap): microseconds in SQL."""
-    return (isinstance(e, ast.Func) and e.name == "gap") or (isinstance(e, ast.Ref) and e.kind == "time")
 
 
 def to_seconds(us_sql: str) -> str:

@@ -19,7 +19,7 @@ import pyarrow.parquet as pq
 import pytest
 
 from engine import Corpus
-from engine.results import MISSING
+from engine.screen import MISSING
 from tests.conftest import first_gum_document, first_gum_sentences
 from tests.test_cli_query import strata
 

@@ -159,7 +159,6 @@ def _read_fast(path: Path, header: list[str], header_line: int) -> Columns | Non
 #: file: 1.186 s is 1186000 µs, so durations, gaps and comparisons are integer arithmetic and
 #: "a pause of 84 ms" is exactly 84000 µs.  A text finer than a microsecond is rounded to the
 #: nearest (half to even).  Every importer of times reads them through parse_time/times_fast.
-US_PER_SECOND = 1_000_000
 _SCALE = {"s": 6, "ms": 3}            # decimal places that make the unit's text whole microseconds
 
 
@@ -205,8 +204,7 @@ def seconds_text(us: int) -> str:
     >>> seconds_text(1186000), seconds_text(84000), seconds_text(0), seconds_text(123456789000)
     ('1.186', '0.084', '0', '123456.789')
     """
-    text = str(Decimal(int(us)).scaleb(-6).normalize())
-    return format(Decimal(text), "f")
+    return format(Decimal(int(us)).scaleb(-6).normalize(), "f")
 
 
 def parse_int(value: str, path: Path, line: int, column: str) -> int:

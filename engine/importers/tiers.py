@@ -37,8 +37,6 @@ REQUIRED = ["doc", "tier", "start", "end", "label"]
 ALLOWED_RESERVED = {"start", "end", "doc"}
 #: Tiers holding the words a forced aligner wrote: aligned to the text.
 WORD_TIERS = ("spoken", "words")
-#: Times are whole microseconds (tabular.parse_time): compared exactly.
-EPS = 0
 
 
 @dataclass
@@ -146,7 +144,7 @@ def _first_overlap(rows: _Rows, idx: np.ndarray, doc: str, tier_names: list, tie
         for s in range(int(speakers_here.max()) + 1):
             grp = rows_t[speakers_here == s]
             grp = grp[np.lexsort((rows.end[grp], rows.start[grp]))]
-            bad = np.flatnonzero(rows.start[grp[1:]] < rows.end[grp[:-1]] - EPS)
+            bad = np.flatnonzero(rows.start[grp[1:]] < rows.end[grp[:-1]])
             if bad.size:
                 k = int(bad[0])
                 return _overlap_message(rows, doc, tier_names[tier[grp[k]]], int(grp[k]), int(grp[k + 1]))
@@ -178,7 +176,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     by_speaker = _sort_by_time(group * n_speakers + speaker_code, rows.start, rows.end)
     key = (group * n_speakers + speaker_code)[by_speaker]
     s_start, s_end = rows.start[by_speaker], rows.end[by_speaker]
-    overlap = (key[1:] == key[:-1]) & (s_start[1:] < s_end[:-1] - EPS)
+    overlap = (key[1:] == key[:-1]) & (s_start[1:] < s_end[:-1])
     docs_overlapping = set((key[1:][overlap] // (n_speakers * len(tier_names))).tolist())
     last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0, np.int64)
 
