@@ -121,15 +121,22 @@ class FirstMention:
 class Relation:
     """``left <name> right`` with optional modifiers.
 
-    within: tolerance/maximum distance (a Literal with a unit); depth: (lo, hi) for
-    ``under``/``above``; label: dependency label; via: edge set; in_time: the Allen
-    reading of ``overlaps``/``contains``.
+    at_least/at_most: bounds on the gap between the two nodes (``by at least 2 words``,
+    ``by at most 100ms``): on precedes/follows the words, tokens or characters strictly
+    between them, on before/after the time from the end of the first to the start of the
+    second; tolerance: ``give or take 20ms`` on Allen's relations (two end points within it
+    are equal); same_sentence: both nodes have one sentence (``in the same sentence``);
+    depth: (lo, hi) for ``under``/``above``; label: dependency label; via: edge set;
+    in_time: the Allen reading of ``overlaps``/``contains``/``inside``.
     """
 
     name: str
     left: Expr
     right: Expr
-    within: Literal | None = None
+    at_least: Literal | None = None
+    at_most: Literal | None = None
+    tolerance: Literal | None = None
+    same_sentence: bool = False
     depth: tuple[int, int] | None = None
     label: Literal | None = None
     via: str | None = None

@@ -14,6 +14,7 @@ import duckdb
 
 from engine.errors import StrataError
 from querylang import ast
+from querylang.bounds import ALLEN_RELATIONS, LENGTH_UNITS, TIME_UNITS, check_modifiers, normalised
 from querylang.catalog import AttrInfo, Catalog, LayerInfo
 
 TEXT_RELATIONS = {"inside", "contains", "overlaps", "same span as", "precedes", "follows",
@@ -24,15 +25,12 @@ DEPENDENCY_RELATIONS = {"depends on", "governs"}
 WALK_RELATIONS = {"under", "above"}
 COREF_RELATIONS = {"same entity as", "antecedent of", "previous mention of"}
 # Allen (1983): the thirteen interval relations.
-TIME_RELATIONS = {"before", "after", "meets", "met by", "overlaps", "overlapped by", "starts",
-                  "started by", "during", "contains", "finishes", "finished by", "equals"}
+TIME_RELATIONS = ALLEN_RELATIONS
 # our own, beside Allen's strict ones (querylang/allen.py): "shares time with" is about time
 # only; "inside ... in time" is containment where edges may coincide
 OWN_TIME_RELATIONS = {"shares time with"}
 TIME_ONLY = (TIME_RELATIONS | OWN_TIME_RELATIONS) - TEXT_RELATIONS   # the ones that need no "in time"
 
-TIME_UNITS = {"ms": 0.001, "s": 1.0}
-LENGTH_UNITS = {"words", "tokens", "chars"}
 
 ANCHOR_COLUMNS = {"id": "int", "doc": "int", "sent": "int", "t_start": "float", "t_end": "float",
                   "tok_first": "int", "tok_last": "int", "word_first": "int", "word_last": "int"}
@@ -323,19 +321,7 @@ class _Checker:
         if rel.label is not None and not (name in DEPENDENCY_RELATIONS or walk):
             hint = f"name the edge set the walk follows: `a {name} b via dep as ...`" if name in WALK_RELATIONS else None
             self.fail("`as` goes with `depends on`, `governs`, and `under`/`above` with `via`", rel.pos, hint)
-        if rel.within is not None and not (is_time or name in ("precedes", "follows", "directly precedes",
-                                                                  "directly follows")):
-            self.fail(f"`within` does not apply to `{name}`", rel.within.pos,
-                      "use it with precedes/follows (distance) or a time relation (tolerance)")
-        if rel.within is not None:
-            w = rel.within
-            if not isinstance(w.value, (int, float)) or w.value < 0:
-                self.fail("`within` needs a number that is not negative", w.pos)
-            if is_time and w.unit not in (None, *TIME_UNITS):
-                self.fail(f"a time tolerance is in ms or s, not {w.unit}", w.pos)
-            if not is_time and w.unit in TIME_UNITS:
-                self.fail(f"a text distance is in words, tokens or chars, not {w.unit}", w.pos,
-                          "for time write e.g. `a before b in time`")
+        check_modifiers(rel, is_time, la, lb, self.fail)
         via = rel.via
         if is_time:
             for info in (la, lb):
@@ -359,13 +345,7 @@ class _Checker:
             if _adjacency_layer(la, lb) is None:
                 self.fail(f"cannot tell adjacency between {la.name!r} and {lb.name!r}: they count no common "
                           "token layer", rel.pos)
-        if rel.within is not None and rel.within.unit in ("words", "tokens") and not is_time:
-            if _ordinal_columns(la, rel.within.unit) is None or _ordinal_columns(lb, rel.within.unit) is None:
-                self.fail(f"layers {la.name!r} and {lb.name!r} are not counted in {rel.within.unit}", rel.within.pos)
-        within = rel.within
-        if is_time and within is not None and within.unit is None:    # a bare tolerance is in seconds
-            within = replace(within, unit="s")
-        return replace(rel, left=left, right=right, via=via, in_time=is_time, within=within)
+        return normalised(replace(rel, left=left, right=right, via=via, in_time=is_time))
 
     def edge_set(self, rel: ast.Relation, la: LayerInfo, lb: LayerInfo) -> str:
         edges = {n: l for n, l in self.all_layers.items() if l.kind == "edges"}
@@ -511,13 +491,6 @@ def _written(expr: ast.Expr) -> str:
     if isinstance(expr, ast.Literal):
         return repr(expr.value)
     return str(expr)
-
-
-def _ordinal_columns(layer: LayerInfo, unit: str) -> tuple[str, str] | None:
-    """Columns holding a node's first/last ordinal counted in words or tokens (None if not counted)."""
-    if unit == "words":
-        return ("word_first", "word_last") if layer.word_layer or layer.kind == "sequence" else None
-    return ("tok_first", "tok_last") if layer.token_layer or layer.kind == "sequence" else None
 
 
 def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:

@@ -13,9 +13,16 @@ Definitions the SQL implements (the user-facing semantics):
   inside that sentence).  ``overlaps`` means sharing at least one character, so a zero-width
   node overlaps nothing.  A node is never inside, overlapping or the same span as itself.
 * ``a precedes b``: both in one document, ``a.end <= b.start and a.start < b.end`` (two
-  points at the same place precede neither way).  ``within N words|tokens|chars`` bounds
-  ``distance``.  Inside/overlaps/same span need no document test: documents never share
-  a character of the global line.
+  points at the same place precede neither way).  Inside/overlaps/same span need no
+  document test: documents never share a character of the global line.
+* Distance bounds (querylang/bounds.py): ``a precedes b by at least L and at most H UNIT``
+  is ``a precedes b and L <= distance(a, b) <= H`` in that unit; as a precedes b this is
+  ``b.start - a.end`` in chars and ``b.first - a.last - 1`` in words/tokens (ordinals), so
+  ``by at most 0 words`` is adjacency and a gap equal to a bound is inside it.  ``a before b
+  by at least L and at most H`` (ms, s) is Allen's ``before`` and
+  ``L <= b.t_start - a.t_end <= H``; ``after`` the same with a and b swapped.
+* ``in the same sentence``: ``a.sent = b.sent`` (the sentence of each node, as the hit
+  table's ``v.sentence`` names it); a node without one has no pair.
 * ``distance(a, b)``: the number of words (``tokens``/``chars`` with that unit) strictly
   between the two nodes; 0 when adjacent or overlapping; no value for nodes of different
   documents.  Words and tokens are counted
@@ -32,9 +39,9 @@ Definitions the SQL implements (the user-facing semantics):
   only edges labelled exactly L.  ``above`` is the inverse.  Recursive SQL, not networkx:
   it was 2-20x faster on the open treebank (benchmarks/walks.py).
 * Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
-  the same document (each document has its own recording clock).  ``within T`` is a
-  tolerance: two end points are equal when they differ by at most T, and one is before the
-  other when it is more than T earlier.  Two relations of our own, not strict:
+  the same document (each document has its own recording clock).  ``give or take T`` is a
+  tolerance on Allen's relations: two end points are equal when they differ by at most T,
+  and one is before the other when it is more than T earlier.  Two relations of our own, not strict:
   ``a inside b in time`` is ``b.t_start <= a.t_start and a.t_end <= b.t_end`` (edges may
   coincide), ``a shares time with b`` is ``a.t_start < b.t_end and b.t_start < a.t_end``.
   Times are whole microseconds (exact integers); ``gap(a, b) = b.t_start - a.t_end``, and
@@ -222,14 +229,17 @@ class SqlBuilder:
         if name in ("contains", "follows", "directly follows", "parent of", "above", "governs") and not r.in_time:
             inverse = {"contains": "inside", "follows": "precedes", "directly follows": "directly precedes",
                        "parent of": "child of", "above": "under", "governs": "depends on"}[name]
-            return self.relation(ast.Relation(inverse, r.right, r.left, r.within, r.depth, r.label, r.via,
-                                              False, r.pos), scope, top)
+            return self.relation(replace(r, name=inverse, left=r.right, right=r.left, in_time=False), scope, top)
+        if r.same_sentence:
+            # the sentence each node has (``v.sentence``): an equality key the join can hash on
+            same = f"{self.col(a, 'sent')} = {self.col(b, 'sent')}"
+            return f"({same} AND {self.relation(replace(r, same_sentence=False), scope, top)})"
         c = self.col
         # node ids are unique across the corpus, so nodes of two layers are never the same node:
         # the test is needed within one layer only (left out, the range join runs without a residual)
         different = f"{c(a, 'id')} <> {c(b, 'id')}" if la.name == lb.name else "TRUE"
         if r.in_time:
-            return self.allen(name, a, b, r.within)
+            return self.allen(r, a, b)
         if name == "inside":
             return f"({c(b, 'start')} <= {c(a, 'start')} AND {c(a, 'end')} <= {c(b, 'end')} AND {different})"
         if name == "overlaps":
@@ -240,17 +250,21 @@ class SqlBuilder:
         if name == "precedes":
             out = (f"({c(a, 'end')} <= {c(b, 'start')} AND {c(a, 'start')} < {c(b, 'end')} AND "
                    f"{c(a, 'doc')} = {c(b, 'doc')}")
-            if r.within is not None:
-                # a precedes b, so distance <= N is a plain range bound (DuckDB can use it in
-                # the join; about 30% faster than testing distance(a, b), benchmarks/queries/13)
-                unit = r.within.unit or "words"
-                n = self.param(r.within.value)
-                if unit == "chars":
-                    out += f" AND {c(b, 'start')} <= {c(a, 'end')} + {n}"
+            # a precedes b, so a bound on distance(a, b) is a plain range bound on b's start,
+            # which DuckDB can use in the join (about 30% faster than testing distance(a, b),
+            # benchmarks/queries/13)
+            for lit, op in ((r.at_least, ">="), (r.at_most, "<=")):
+                if lit is None:
+                    continue
+                if lit.unit == "chars":
+                    out += f" AND {c(b, 'start')} {op} {c(a, 'end')} + {self.param(lit.value)}"
+                    continue
+                _, last_a = ordinals(la, lit.unit)
+                first_b, _ = ordinals(lb, lit.unit)
+                if op == ">=" and lit.value == 0:     # no words between is a gap of 0, not -1
+                    out += f" AND {c(a, last_a)} IS NOT NULL AND {c(b, first_b)} IS NOT NULL"
                 else:
-                    _, last_a = ordinals(la, unit)
-                    first_b, _ = ordinals(lb, unit)
-                    out += f" AND {c(b, first_b)} <= {c(a, last_a)} + {n} + 1"
+                    out += f" AND {c(b, first_b)} {op} {c(a, last_a)} + {self.param(lit.value)} + 1"
             return out + ")"
         if name == "directly precedes":
             ref = _adjacency_layer(la, lb)
@@ -351,8 +365,9 @@ class SqlBuilder:
                                   f"GROUP BY {src}, {dst} HAVING min(k) BETWEEN {lo} AND {hi})")
         return name
 
-    def allen(self, name: str, a: str, b: str, within: ast.Literal | None) -> str:
-        tol = self.literal(within) if within is not None and within.value != 0 else None
+    def allen(self, r: ast.Relation, a: str, b: str) -> str:
+        name = r.name
+        tol = self.literal(r.tolerance) if r.tolerance is not None else None
         s = {a: self.col(a, "t_start"), b: self.col(b, "t_start")}
         e = {a: self.col(a, "t_end"), b: self.col(b, "t_end")}
 
@@ -385,7 +400,13 @@ class SqlBuilder:
             "shares time with": [lt(s[a], e[b]), lt(s[b], e[a]), different],
         }
         same_recording = f"{self.col(a, 'doc')} = {self.col(b, 'doc')}"
-        return "(" + " AND ".join([same_recording] + forms[name]) + ")"
+        bounds = []
+        if name in ("before", "after"):
+            first, second = (a, b) if name == "before" else (b, a)
+            # the gap s[second] - e[first] as a range bound on the second's start
+            bounds = [f"{s[second]} {op} {e[first]} + {self.literal(lit)}"
+                      for lit, op in ((r.at_least, ">="), (r.at_most, "<=")) if lit is not None]
+        return "(" + " AND ".join([same_recording] + forms[name] + bounds) + ")"
 
     # ---- FROM and WHERE of one level ---------------------------------------------------------
     def level(self, bindings: tuple[ast.Binding, ...], cond: ast.Cond | None, scope: Scope) -> tuple[str, str]:

@@ -6,6 +6,7 @@ and column so the command line can draw a caret; no lark exception escapes.
 """
 from __future__ import annotations
 
+from dataclasses import replace
 from functools import lru_cache
 from pathlib import Path as FilePath
 
@@ -36,11 +37,31 @@ TERMINAL_NAMES = {
     "CROSS_PRODUCT": "allow cross product",
     "IN_TIME": "in time",
     "AT_DEPTH": "at depth",
+    "BY_AT_MOST": "by at most",
+    "BY_AT_LEAST": "by at least",
+    "AND_AT_MOST": "and at most",
+    "GIVE_OR_TAKE": "give or take",
+    "SAME_SENTENCE": "in the same sentence",
+    "WITHIN": "within",
     "AGGREGATE": "mean/min/max/sum",
     "FUNCTION": "distance/gap",
     "UNIT": "a unit (ms, s, words, tokens, chars)",
     "$END": "the end of the query",
 }
+
+#: how each relation modifier is written (for "given twice")
+MODIFIER_WORDS = {"at_least": "by at least", "at_most": "by at most", "tolerance": "give or take",
+                  "same_sentence": "in the same sentence", "in_time": "in time", "depth": "at depth",
+                  "label": "as", "via": "via"}
+
+
+class PlacedError(Exception):
+    """A mistake the transformer finds, at a place in the query (becomes a StrataError)."""
+
+    def __init__(self, message: str, pos: ast.Pos, hint: str | None = None):
+        super().__init__(message)
+        self.message, self.pos, self.hint = message, pos, hint
+
 
 ESCAPES = {"n": "\n", "t": "\t", "\\": "\\", '"': '"'}
 
@@ -204,24 +225,46 @@ class ToAst(Transformer):
 
     def relation(self, left, name, right, *mods):
         fields: dict[str, object] = {}
-        for key, value in mods:
-            fields[key] = value
+        for key, value, pos in mods:
+            items = [("at_least", value[0]), ("at_most", value[1])] if key == "bounds" else [(key, value)]
+            for k, v in items:
+                if k in fields:
+                    raise PlacedError(f"`{MODIFIER_WORDS[k]}` is given twice for one relation", pos)
+                fields[k] = v
         return ast.Relation(" ".join(str(name).split()), left, right, pos=_pos(name), **fields)
 
-    def within(self, quantity):
-        return ("within", quantity)
+    def at_most(self, token, quantity):
+        return ("at_most", quantity, _pos(token))
+
+    def at_least(self, token, quantity, and_token=None, most=None):
+        if most is None:
+            return ("at_least", quantity, _pos(token))
+        if quantity.unit is None:         # by at least 2 and at most 5 words: one unit for both
+            quantity = replace(quantity, unit=most.unit)
+        return ("bounds", (quantity, most), _pos(token))
+
+    def tolerance(self, token, quantity):
+        return ("tolerance", quantity, _pos(token))
+
+    def same_sentence(self, token):
+        return ("same_sentence", True, _pos(token))
+
+    def within(self, token, quantity=None):
+        raise PlacedError("`within` is not a word of this language any more: it meant a distance on some "
+                          "relations and a tolerance on others", _pos(token),
+                          "write 'by at most 3 words' for a distance, 'give or take 20ms' for a tolerance")
 
     def at_depth(self, token, lo, hi=None):
-        return ("depth", (int(lo), int(hi if hi is not None else lo)))
+        return ("depth", (int(lo), int(hi if hi is not None else lo)), _pos(token))
 
     def label(self, string):
-        return ("label", ast.Literal(unquote(str(string)), None, _pos(string)))
+        return ("label", ast.Literal(unquote(str(string)), None, _pos(string)), _pos(string))
 
     def via(self, name):
-        return ("via", name.text)
+        return ("via", name.text, name.pos)
 
     def in_time(self, token):
-        return ("in_time", True)
+        return ("in_time", True, _pos(token))
 
     def list(self, *values):
         return tuple(v for v in values if v is not None)
@@ -309,6 +352,9 @@ def parse(text: str) -> ast.Query:
     try:
         return ToAst().transform(tree)
     except VisitError as err:
+        if isinstance(err.orig_exc, PlacedError):
+            e = err.orig_exc
+            raise StrataError(e.message, query=text, line=e.pos.line, column=e.pos.column, hint=e.hint) from None
         raise StrataError(f"cannot read the query: {err.orig_exc}", query=text, line=1, column=1) from None
 
 

@@ -17,7 +17,7 @@ DOCUMENT_LOCAL = [
     'find d = word(deprel = "amod"), h = word where d depends on h',
     'find d = word, h = word(upos = "VERB") where d child of h and d.upos = "PRON"',
     'find s = sentence without t = word(upos = "AUX") where t inside s',
-    'find f = word(upos = "INTJ"), n = word(upos = "NOUN") where f precedes n within 3 tokens',
+    'find f = word(upos = "INTJ"), n = word(upos = "NOUN") where f precedes n by at most 3 tokens',
     'find a = word(upos = "NUM"), b = word(upos = "NOUN"), s = sentence where a precedes b and b inside s',
 ]
 NOT_LOCAL = [

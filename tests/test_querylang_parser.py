@@ -41,9 +41,45 @@ def test_units_functions_and_modifiers():
     rel, cmp = q.where.items
     assert rel.name == "antecedent of"
     assert cmp.left == ast.Func("distance", "a", "b") and cmp.right == ast.Literal(40, "tokens")
-    q = parse("find a = token, b = token where a meets b within 20ms and gap(a, b) >= 0.25 s")
-    assert q.where.items[0].within == ast.Literal(20, "ms")
+    q = parse("find a = token, b = token where a meets b give or take 20ms and gap(a, b) >= 0.25 s")
+    assert q.where.items[0].tolerance == ast.Literal(20, "ms")
     assert q.where.items[1].right == ast.Literal(0.25, "s")
+
+
+def test_distance_bounds_tolerance_and_same_sentence():
+    q = parse("find a = word, b = word where a precedes b by at most 1 word")
+    assert (q.where.at_least, q.where.at_most) == (None, ast.Literal(1, "words"))
+    q = parse("find a = word, b = word where a follows b by at least 2 tokens")
+    assert (q.where.at_least, q.where.at_most) == (ast.Literal(2, "tokens"), None)
+    # both bounds: one unit after the second number, or a unit after each, or two modifiers
+    for text in ("by at least 2 and at most 5 chars", "by at least 2 chars and at most 5 chars",
+                 "by at most 5 chars by at least 2 chars"):
+        q = parse(f"find a = word, b = word where a precedes b {text} and a.form = \"x\"")
+        rel = q.where.items[0]
+        assert (rel.at_least, rel.at_most) == (ast.Literal(2, "chars"), ast.Literal(5, "chars")), text
+    q = parse("find e = events, w = spoken where e after w in time by at most 0.1s in the same sentence")
+    assert q.where.at_most == ast.Literal(0.1, "s") and q.where.same_sentence and q.where.in_time
+    # `in the same sentence` on a relation, `in the same reading` on the query
+    q = parse("find a = word, b = word where a precedes b in the same sentence in the same reading")
+    assert q.where.same_sentence and q.qualifiers == {"same reading"}
+    # `and` after a bound is the boolean `and` unless `at most` follows
+    q = parse("find a = word, b = word where a precedes b by at least 1 word and at_most = 3")
+    assert isinstance(q.where, ast.And) and q.where.items[0].at_least == ast.Literal(1, "words")
+
+
+def test_within_is_refused_with_the_replacements():
+    text = "find a = word, b = word where a precedes b within 3 words"
+    with pytest.raises(StrataError) as e:
+        parse(text)
+    assert (e.value.line, e.value.column) == (1, text.index("within") + 1)
+    assert "by at most 3 words" in e.value.hint and "give or take 20ms" in e.value.hint
+
+
+def test_a_modifier_given_twice_is_refused_at_the_second():
+    text = "find a = word, b = word where a precedes b by at most 3 words by at most 2 words"
+    with pytest.raises(StrataError) as e:
+        parse(text)
+    assert e.value.column == text.rindex("by at most") + 1 and "given twice" in str(e.value)
 
 
 def test_multiword_relations_and_qualifiers():
