@@ -35,7 +35,8 @@ def text_seconds(ms: int) -> str:
 
 @pytest.fixture(scope="module")
 def timed(tmp_path_factory):
-    """(corpus, gaps in ms between consecutive spoken words of one document, pause durations in ms)."""
+    """(corpus, gaps in ms between consecutive spoken words of one document, pause durations in ms,
+    each document's spoken words as (start, end) in ms)."""
     root = tmp_path_factory.mktemp("exact")
     source = first_gum_sentences(root, 180)
     docs: dict[str, list[str]] = {}
@@ -50,6 +51,7 @@ def timed(tmp_path_factory):
             elif isinstance(t["id"], int) and t["id"] not in covered and t["upos"] != "PUNCT":
                 docs.setdefault(doc, []).append(t["form"])
     rows, gaps, k = [], [], 0
+    spans: dict[str, list[tuple[int, int]]] = {}
     for name, forms in docs.items():
         t = OFFSET_MS
         for i, form in enumerate(forms):
@@ -59,6 +61,7 @@ def timed(tmp_path_factory):
                 gaps.append(gap)
                 t += gap
             rows.append(f"{name}\tspoken\t{text_seconds(t)}\t{text_seconds(t + 137)}\t{form.lower()}\n")
+            spans.setdefault(name, []).append((t, t + 137))
             t += 137
     assert len(gaps) >= N                                     # every gap from 1 to 2000 ms occurs
     durations = list(range(1, N + 1))
@@ -73,10 +76,10 @@ def timed(tmp_path_factory):
     corpus = Corpus.create(root / "corpus")
     corpus.import_files([source], progress=False)
     corpus.import_files([tiers], progress=False)
-    return corpus, gaps, durations
+    return corpus, gaps, durations, spans
 
 
-def sweep(corpus: Corpus, template: str, values: list[int]) -> dict[str, int]:
+def sweep(corpus: Corpus, template: str, values: list[int], ops: dict | None = None) -> dict[str, int]:
     """Wrong counts per operator over thresholds 1..N ms (0 everywhere when times are exact);
     the thresholds run on two cursors at once (DuckDB releases the GIL), half each."""
     con = corpus._query_connection()
@@ -88,7 +91,7 @@ def sweep(corpus: Corpus, template: str, values: list[int]) -> dict[str, int]:
              ">": lambda ms: n - bisect_right(ordered, ms), ">=": lambda ms: n - bisect_left(ordered, ms)}
     assert all(truth[op](ms) == sum(1 for v in values if fn(v, ms)) for op, fn in OPS.items() for ms in (1, 999, N))
     wrong = {}
-    for op in OPS:
+    for op in ops or OPS:
         compiled = compile_query(template.format(op=op, ms=1), corpus.store)
         at = [i for i, p in enumerate(compiled.params) if p == 1000]       # 1 ms as whole microseconds
         assert len(at) == 1, compiled.params
@@ -107,21 +110,45 @@ def sweep(corpus: Corpus, template: str, values: list[int]) -> dict[str, int]:
 
 
 def test_every_duration_from_1_to_2000_ms(timed):
-    corpus, _, durations = timed
+    corpus, _, durations, _ = timed
     wrong = sweep(corpus, "find p = pauses where p.duration {op} {ms}ms count", durations)
     assert wrong == {op: 0 for op in OPS}
 
 
 def test_every_gap_from_1_to_2000_ms(timed):
-    corpus, gaps, _ = timed
+    corpus, gaps, _, _ = timed
     wrong = sweep(corpus, "find a = spoken, b = spoken where a directly precedes b and gap(a, b) {op} {ms}ms count",
                   gaps)
     assert wrong == {op: 0 for op in OPS}
 
 
 def test_durations_print_as_the_decimals_written(timed):
-    corpus, _, durations = timed
+    corpus, _, durations, _ = timed
     shown = corpus.query("find p = pauses show p.duration").rows()
     assert sorted(r["p.duration"] for r in shown) == [d / 1000 for d in range(1, N + 1)]
     assert {repr(r["p.duration"]) for r in shown} == {repr(d / 1000) for d in durations}
     assert all(len(repr(r["p.start"])) <= 11 for r in shown)           # e.g. 1010.123, never noise
+
+
+def test_time_bounds_hold_at_every_boundary_from_1_to_2000_ms(timed):
+    """``a before b by at most T``: Allen's before and a gap of at most T, for every T from 1 to
+    2000 ms; a gap equal to the bound is inside it (each T is some pair's gap). The truth is
+    every pair of spoken words of one document whose integer gap is 1..2000 ms; ``by at least T
+    and at most 2000ms`` counts the pairs from T up. ``b after a`` gives the same counts."""
+    corpus, _, _, spans = timed
+    pair_gaps = [s2 - e1 for words in spans.values() for i, (_, e1) in enumerate(words)
+                 for s2, _ in words[i + 1:] if 0 < s2 - e1 <= N]
+    assert set(range(1, N + 1)) <= set(pair_gaps)
+    for template, op in (("find a = spoken, b = spoken where a before b by at most {ms}ms count", "<="),
+                         ("find a = spoken, b = spoken where b after a by at most {ms}ms count", "<="),
+                         ("find a = spoken, b = spoken where a before b by at least {ms}ms and at most 2s count",
+                          ">=")):
+        wrong = sweep(corpus, template, pair_gaps, {op: OPS[op]})
+        assert wrong == {op: 0}, template
+
+
+def test_a_bound_in_seconds_is_the_same_bound_in_ms(timed):
+    corpus = timed[0]
+    count = lambda bound: corpus.query(f"find a = spoken, b = spoken where a before b {bound} count").rows()[0]["count"]  # noqa: E731
+    assert count("by at most 1.5s") == count("by at most 1500ms") > count("by at most 1499ms")
+    assert count("by at least 0.25s and at most 0.5s") == count("by at least 250ms and at most 500ms") > 0
