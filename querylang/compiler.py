@@ -41,7 +41,8 @@ Definitions the SQL implements (the user-facing semantics):
 * Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
   the same document (each document has its own recording clock).  ``give or take T`` is a
   tolerance on Allen's relations: two end points are equal when they differ by at most T,
-  and one is before the other when it is more than T earlier.  Two relations of our own, not strict:
+  and one is before the other when it is more than T earlier.  A node never meets, is met
+  by or equals itself (with a tolerance as long as it, or at zero duration, it would).  Two relations of our own, not strict:
   ``a inside b in time`` is ``b.t_start <= a.t_start and a.t_end <= b.t_end`` (edges may
   coincide), ``a shares time with b`` is ``a.t_start < b.t_end and b.t_start < a.t_end``.
   Times are whole microseconds (exact integers); ``gap(a, b) = b.t_start - a.t_end``, and
@@ -384,8 +385,8 @@ class SqlBuilder:
         forms = {
             "before": [lt(e[a], s[b])],
             "after": [lt(e[b], s[a])],
-            "meets": [eq(e[a], s[b])],
-            "met by": [eq(e[b], s[a])],
+            "meets": [eq(e[a], s[b]), different],
+            "met by": [eq(e[b], s[a]), different],
             "overlaps": [lt(s[a], s[b]), lt(s[b], e[a]), lt(e[a], e[b])],
             "overlapped by": [lt(s[b], s[a]), lt(s[a], e[b]), lt(e[b], e[a])],
             "starts": [eq(s[a], s[b]), lt(e[a], e[b])],

@@ -152,3 +152,24 @@ def test_a_bound_in_seconds_is_the_same_bound_in_ms(timed):
     count = lambda bound: corpus.query(f"find a = spoken, b = spoken where a before b {bound} count").rows()[0]["count"]  # noqa: E731
     assert count("by at most 1.5s") == count("by at most 1500ms") > count("by at most 1499ms")
     assert count("by at least 0.25s and at most 0.5s") == count("by at least 250ms and at most 500ms") > 0
+
+
+def test_a_tolerance_holds_at_its_boundary(timed):
+    """``a meets b give or take T``: a's end and b's start differ by at most T (Allen's meets with
+    a tolerance). Checked at T = d - 1, d and d + 1 ms for differences d that occur, against every
+    ordered pair of two spoken words of one document (a word never meets itself, though its
+    end and start differ by its 137 ms); with no tolerance, no word meets another."""
+    corpus, _, _, spans = timed
+    diffs = sorted(abs(s2 - e1) for words in spans.values() for i, (_, e1) in enumerate(words)
+                   for j, (s2, _) in enumerate(words) if i != j and abs(s2 - e1) <= N + 1)
+    con = corpus._query_connection()
+    compiled = compile_query("find a = spoken, b = spoken where a meets b give or take 1ms count", corpus.store)
+    at = compiled.params.index(1000)
+    rng = random.Random(11)
+    for d in [1, 2, 137, N] + rng.sample(diffs, 12):
+        for t in (d - 1, d, d + 1):
+            params = list(compiled.params)
+            params[at] = t * 1000
+            if t:
+                assert con.execute(compiled.sql, params).fetchone()[0] == bisect_right(diffs, t), t
+    assert corpus.query("find a = spoken, b = spoken where a meets b count").rows()[0]["count"] == 0

@@ -158,7 +158,7 @@ def allen(name: str, a: dict, b: dict, tol: float) -> bool:
     le = lambda x, y: x <= y + tol                 # noqa: E731
     s1, e1, s2, e2 = a["t_start"], a["t_end"], b["t_start"], b["t_end"]
     return {
-        "before": lt(e1, s2), "after": lt(e2, s1), "meets": eq(e1, s2), "met by": eq(e2, s1),
+        "before": lt(e1, s2), "after": lt(e2, s1), "meets": eq(e1, s2) and a["id"] != b["id"], "met by": eq(e2, s1) and a["id"] != b["id"],
         "overlaps": lt(s1, s2) and lt(s2, e1) and lt(e1, e2),
         "overlapped by": lt(s2, s1) and lt(s1, e2) and lt(e2, e1),
         "starts": eq(s1, s2) and lt(e1, e2), "started by": eq(s1, s2) and lt(e2, e1),
