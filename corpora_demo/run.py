@@ -33,9 +33,10 @@ IMPORTS: list[tuple[str, str, dict]] = [
 #: different files: that is what the demo is for.
 SHOWCASE: list[tuple[str, str]] = [
     ("Silent pauses inside a turn (time tier) that end just as a subject phrase "
-     "(constituency tree) begins, with the pause's start and length in seconds.",
+     "(constituency tree) begins, give or take 20 ms of aligner rounding, with the pause's "
+     "start and length in seconds.",
      'find p = pauses(speaker is not missing), np = tree(label = "NP-SBJ", reading = 0)\n'
-     "where p meets np\n"
+     "where p meets np give or take 20ms\n"
      "show p.start, p.duration"),
     ("Filled pauses (disfluency spans) by the speaker of their sentence (CoNLL-U comment) "
      "and the smallest constituent (tree) around them.",
@@ -63,11 +64,17 @@ SHOWCASE: list[tuple[str, str]] = [
      'find ph = phones, w = spoken, np = tree(label = "NP-SBJ", reading = 0)\n'
      "where ph inside w and w inside np\n"
      "mean(ph.duration) by np.sentence.speaker"),
-    ("Filled pauses (disfluency spans, anchored on characters) followed at once by a silent "
-     "pause (time tier): the silence that comes after the 'um'.",
-     'find f = disfluency(label = "filled_pause"), p = pauses\n'
-     "where f meets p\n"
-     "show p.duration"),
+    ("Silent pauses (time tier) that end at most one second before a restart begins "
+     "(reparandum spans, anchored on characters and timed through their spoken words), with "
+     "the pause's length and the gap in seconds.",
+     'find p = pauses, r = disfluency(label = "reparandum")\n'
+     "where p before r by at most 1s\n"
+     "show p.duration, gap(p, r)"),
+    ("Interjections (words) at most one word before a pronoun in the same sentence, as in "
+     "'oh, I' or 'yes it', by the two lemmas.",
+     'find i = word(upos = "INTJ"), p = word(upos = "PRON")\n'
+     "where i precedes p by at most 1 word in the same sentence\n"
+     "count by i.lemma, p.lemma"),
 ]
 
 

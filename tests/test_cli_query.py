@@ -313,6 +313,30 @@ def test_explain_shows_sql_with_parameters_and_the_duckdb_plan(small):
     assert any(op in plan.upper() for op in ("SEQ_SCAN", "TABLE_SCAN", "READ_PARQUET", "PARQUET_SCAN"))
 
 
+def test_explain_shows_a_distance_bound_and_the_same_sentence_in_the_sql(small):
+    query = ('find v = word(upos = "VERB"), p = word(upos = "ADP") '
+             'where v precedes p by at most 1 word in the same sentence')
+    done = strata("explain", small[0], query)
+    assert done.returncode == 0, done.stderr
+    sql = done.stdout.split("\nsql:\n")[1].split("\nparameters:\n")[0]
+    params = done.stdout.split("\nparameters:\n")[1].split("\nduckdb plan:\n")[0]
+    bound = re.search(r'v1\."ord" <= v0\."ord" \+ \$(\d+) \+ 1', sql)   # b.first <= a.last + N + 1
+    assert bound, sql
+    assert re.search(rf"^\s*\${bound.group(1)} = 1$", params, re.M), params   # the bound is a parameter
+    assert 'v0."sent" = v1."sent"' in sql
+
+
+def test_within_is_refused_with_the_caret_under_it(small):
+    query = 'find a = word, b = word where a precedes b within 3 words'
+    done = strata("query", small[0], query)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    lines = done.stderr.splitlines()
+    shown = next(k for k, line in enumerate(lines) if query in line)
+    caret = lines[shown + 1]
+    assert caret.index("^") - lines[shown].index(query) == query.index("within")
+    assert "by at most 3 words" in done.stderr and "give or take 20ms" in done.stderr
+
+
 def test_explain_of_a_mistake_is_a_user_error(small):
     done = strata("explain", small[0], "find w = wrod")
     assert done.returncode == 2 and "did you mean" in done.stderr and "Traceback" not in done.stderr
