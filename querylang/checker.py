@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 
 import duckdb
 
-from engine.errors import StrataError
+from querylang.errors import StrataError
 from querylang import ast
 from querylang.bounds import ALLEN_RELATIONS, LENGTH_UNITS, TIME_UNITS, check_modifiers, normalised
 from querylang.catalog import AttrInfo, Catalog, LayerInfo

@@ -13,7 +13,7 @@ from pathlib import Path as FilePath
 from lark import Lark, Transformer, v_args
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken, VisitError
 
-from engine.errors import StrataError
+from querylang.errors import StrataError
 from querylang import ast
 
 GRAMMAR_FILE = FilePath(__file__).with_name("grammar.lark")
