@@ -203,7 +203,7 @@ def strip_output(query: str) -> str:
 
     lines = [line.split("#", 1)[0] if not _in_string(line) else line for line in query.splitlines()]
     text = " ".join(part.strip() for part in lines if part.strip())
-    return re.sub(r"\s+(count(\s+by\s+.*)?|(mean|min|max|sum)\s*\(.*)$", "", text)
+    return re.sub(r"\s+(count\b.*|rate\b.*|(mean|min|max|sum|median|stdev|quantile)\s*\(.*)$", "", text)
 
 
 def _in_string(line: str) -> bool:

@@ -43,7 +43,7 @@ SHOWCASE: list[tuple[str, str]] = [
      'find f = disfluency(label = "filled_pause"), c = tree(reading = 0)\n'
      "where f inside c and not c same span as f\n"
      "without d = tree where d under c and f inside d and not d same span as f\n"
-     "count by f.sentence.speaker, c.cat"),
+     "count per f.sentence.speaker, c.cat"),
     ("Restarts and their repairs: a reparandum and the repair of the same group, and the "
      "time from the end of one to the start of the other (from the spoken words' timings).",
      'find r = disfluency(label = "reparandum"), p = disfluency(label = "repair")\n'
@@ -53,7 +53,7 @@ SHOWCASE: list[tuple[str, str]] = [
      "tree reading and to the noun phrase in the other, with both reading numbers.",
      'find pp_v = tree(cat = "PP"), vp = tree(cat = "VP"), pp_n = tree(cat = "PP"), np = tree(cat = "NP")\n'
      "where pp_v child of vp and pp_n child of np and pp_v same span as pp_n\n"
-     "count by pp_v.sentence.sent_id, pp_v.text, pp_v.reading, pp_n.reading"),
+     "count per pp_v.sentence.sent_id, pp_v.text, pp_v.reading, pp_n.reading"),
     ("Third-person pronouns (words) and the previous mention of their entity (coreference), "
      "with the seconds between the two on the recording.",
      'find a = mention, p = mention, t = word(upos = "PRON", feats.Person = "3")\n'
@@ -63,7 +63,7 @@ SHOWCASE: list[tuple[str, str]] = [
      "duration in seconds by the speaker of the sentence.",
      'find ph = phones, w = spoken, np = tree(label = "NP-SBJ", reading = 0)\n'
      "where ph inside w and w inside np\n"
-     "mean(ph.duration) by np.sentence.speaker"),
+     "mean(ph.duration) per np.sentence.speaker"),
     ("Silent pauses (time tier) that end at most one second before a restart begins "
      "(reparandum spans, anchored on characters and timed through their spoken words), with "
      "the pause's length and the gap in seconds.",
@@ -74,7 +74,7 @@ SHOWCASE: list[tuple[str, str]] = [
      "'oh, I' or 'yes it', by the two lemmas.",
      'find i = word(upos = "INTJ"), p = word(upos = "PRON")\n'
      "where i precedes p by at most 1 word in the same sentence\n"
-     "count by i.lemma, p.lemma"),
+     "count per i.lemma, p.lemma"),
 ]
 
 

@@ -147,6 +147,8 @@ def query(
     q = _query_text(text, file)
     hits = _open(corpus).query(q, limit=limit, context=context)
     write_hits(hits, fmt, output, limit)
+    for note in hits.notes:
+        err.print(f"note: {note}", markup=False)
 
 
 def write_hits(hits, format: str, output: Optional[Path], limit: Optional[int] = None) -> None:

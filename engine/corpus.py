@@ -3,7 +3,7 @@
 >>> from engine import Corpus                                  # doctest: +SKIP
 >>> c = Corpus.create("calls.corpus")                           # doctest: +SKIP
 >>> c.import_files(["calls.conllu"])                            # doctest: +SKIP
->>> hits = c.query('find t = token(upos = "VERB") count by t.lemma')   # doctest: +SKIP
+>>> hits = c.query('find t = token(upos = "VERB") count per t.lemma')   # doctest: +SKIP
 >>> hits.to_pandas()                                            # doctest: +SKIP
 """
 from __future__ import annotations

@@ -22,7 +22,7 @@ from engine.errors import StrataError
 from engine.results import Hits
 from querylang.ast import Query, Show
 from querylang.catalog import Catalog
-from querylang.compiler import DOCUMENTS_VIEW, ident
+from querylang.compiler import DOCUMENTS_VIEW, effective_limit, ident
 from querylang.pipeline import Compilation, run_passes
 
 
@@ -128,7 +128,17 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
     table = table.rename_columns(compiled.columns)
     output = compiled.ast.output
     shown = tuple(i.label for i in output.items) if isinstance(output, Show) else ()
-    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown)
+    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown, _notes(compiled, table, limit))
+
+
+def _notes(compiled: CompiledQuery, table: pa.Table, limit: int | None) -> tuple[str, ...]:
+    """What the user should know about the result beside its rows."""
+    q = compiled.ast
+    every = effective_limit(q.limit, limit)
+    if (q.sample is not None and compiled.kind == "hits" and table.num_rows < q.sample.size
+            and (every is None or table.num_rows < every)):
+        return (f"sample {q.sample.size} asked for, but the query has {table.num_rows} hit{'' if table.num_rows == 1 else 's'}: all of them are listed",)
+    return ()
 
 
 WINDOW_CANDIDATES_PER_HIT = 4   # rule of thumb: candidates of the most selective variable per wanted hit

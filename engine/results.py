@@ -34,6 +34,8 @@ class Hits:
     windows: tuple[tuple[int, int, int], ...] = field(default=(), repr=False)
     #: the query's own ``show`` columns, which the screen never leaves out; None: show every column
     shown: tuple[str, ...] | None = None
+    #: what the user should know beside the rows (e.g. a sample larger than the result)
+    notes: tuple[str, ...] = ()
 
     def __len__(self) -> int:
         return self.table.num_rows

@@ -72,7 +72,54 @@ class Func:
     pos: Pos = field(default=NOWHERE, compare=False)
 
 
-Expr = Union[Literal, Path, Ref, Func]
+@dataclass(frozen=True)
+class Call:
+    """``lower(x)``, ``fold(x)`` (case and typographic quotes folded), ``length(x)`` (characters)."""
+
+    name: str
+    arg: "Expr"
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class AggCall:
+    """An aggregate over the hits of a group: ``count``, ``count distinct x`` (``x`` a value,
+    or a variable: its distinct nodes), ``mean``, ``min``, ``max``, ``sum``, ``median``,
+    ``stdev``, ``quantile(x, q)``, and ``rate`` (hits per 1,000 words of the group's text)."""
+
+    func: str
+    arg: "Expr | None" = None
+    q: float | None = None
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+    @property
+    def label(self) -> str:
+        if self.func in ("count", "rate"):
+            return self.func
+        if self.func == "count distinct":
+            return f"count distinct {_expr_label(self.arg)}"
+        extra = f", {self.q:g}" if self.q is not None else ""
+        return f"{self.func}({_expr_label(self.arg)}{extra})"
+
+
+def _expr_label(e: "Expr | None") -> str:
+    """How an expression is written back in a column name (``v.lemma``, ``lower(v.form)``)."""
+    if isinstance(e, Path):
+        return e.text
+    if isinstance(e, Ref):
+        return e.written or f"{e.var}.{e.name}"
+    if isinstance(e, Func):
+        return f"{e.name}({e.a}, {e.b})"
+    if isinstance(e, Call):
+        return f"{e.name}({_expr_label(e.arg)})"
+    if isinstance(e, AggCall):
+        return e.label
+    if isinstance(e, Literal):
+        return repr(e.value)
+    return str(e)
+
+
+Expr = Union[Literal, Path, Ref, Func, Call, AggCall]
 
 
 # ---- conditions -------------------------------------------------------------
@@ -195,18 +242,41 @@ class Show:
 
 
 @dataclass(frozen=True)
-class Count:
-    by: tuple[ShowItem, ...] = ()
+class AggItem:
+    call: AggCall
+    label: str
 
 
 @dataclass(frozen=True)
 class Aggregate:
-    func: str               # mean, min, max, sum
-    expr: ShowItem
-    by: tuple[ShowItem, ...] = ()
+    """Aggregates per group: ``count, mean(p.duration) per p.speaker having count >= 5``."""
+
+    items: tuple[AggItem, ...]
+    per: tuple[ShowItem, ...] = ()
+    having: Cond | None = None
+    having_pos: Pos = field(default=NOWHERE, compare=False)
 
 
-Output = Union[Show, Count, Aggregate]
+Output = Union[Show, Aggregate]
+
+
+@dataclass(frozen=True)
+class OrderItem:
+    """One key of ``order by``: an output column's expression, or ``left`` / ``right`` (the
+    hit's context, nearest word first)."""
+
+    expr: "Expr | str"
+    descending: bool = False
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
+class Sample:
+    """``sample N seed S``: N hits drawn uniformly at random, the same ones for the same seed."""
+
+    size: int
+    seed: int = 0
+    pos: Pos = field(default=NOWHERE, compare=False)
 
 
 @dataclass(frozen=True)
@@ -217,6 +287,8 @@ class Query:
     qualifiers: frozenset[str] = frozenset()   # "same reading", "every reading", "cross product"
     output: Output | None = None
     limit: int | None = None
+    order: tuple[OrderItem, ...] = ()
+    sample: Sample | None = None
 
 
 def conjuncts(cond: Cond | None) -> list[Cond]:
@@ -231,13 +303,26 @@ def conjuncts(cond: Cond | None) -> list[Cond]:
     return [cond]
 
 
+def atoms(cond: Cond | None):
+    """The comparisons, relations and tests of a condition, under any and/or/not (none for None)."""
+    if cond is None:
+        return
+    if isinstance(cond, (And, Or)):
+        for c in cond.items:
+            yield from atoms(c)
+    elif isinstance(cond, Not):
+        yield from atoms(cond.item)
+    else:
+        yield cond
+
+
 def refs_in(node: object) -> list[Ref]:
     """Every resolved Ref inside a condition or expression, in order."""
     if isinstance(node, Ref):
         return [node]
     if isinstance(node, (Literal, Path)) or node is None:
         return []
-    if isinstance(node, Func):
+    if isinstance(node, Func) or isinstance(node, str):
         return []
     out: list[Ref] = []
     for name in getattr(node, "__dataclass_fields__", {}):
@@ -252,7 +337,7 @@ def refs_in(node: object) -> list[Ref]:
 
 def vars_in(node: object) -> set[str]:
     """Variables a condition or expression mentions (refs, relations, functions)."""
-    if node is None or isinstance(node, (Literal, Path)):
+    if node is None or isinstance(node, (Literal, Path, str)):
         return set()
     if isinstance(node, Ref):
         return {node.var}

@@ -13,9 +13,10 @@ from dataclasses import dataclass, field, replace
 import duckdb
 
 from querylang.errors import StrataError
-from querylang import ast
+from querylang import ast, outputs
 from querylang.bounds import ALLEN_RELATIONS, LENGTH_UNITS, TIME_UNITS, check_modifiers, normalised
 from querylang.catalog import AttrInfo, Catalog, LayerInfo
+from querylang.types import NUMERIC, is_time, type_name as _type_name, type_of as _type, written as _written
 
 TEXT_RELATIONS = {"inside", "contains", "overlaps", "same span as", "precedes", "follows",
                   "directly precedes", "directly follows"}
@@ -39,7 +40,6 @@ TREE_COLUMNS = {"parent": "int", "depth": "int", "pre": "int", "post": "int"}
 DERIVED = {"text": ("text", "str"), "start": ("time", "time"), "end": ("time", "time"),
            "duration": ("time", "time"), "char_start": ("offset", "int"), "char_end": ("offset", "int")}
 
-NUMERIC = {"int", "float", "time", "length"}
 
 
 @dataclass(frozen=True)
@@ -191,10 +191,24 @@ class _Checker:
                   getattr(expr, "pos", None))
         raise AssertionError
 
+    #: where aggregates may stand: set by querylang/outputs.py while it checks having and order by
+    aggregates_allowed = False
+
     def expr(self, expr: ast.Expr, scope: dict[str, LayerInfo], own: str | None) -> ast.Expr:
         """Resolve a value; ``own`` is the variable whose binding parentheses we are in."""
         if isinstance(expr, ast.Literal):
             return expr
+        if isinstance(expr, ast.Call):
+            arg = self.expr(expr.arg, scope, own)
+            if _type(arg) != "str":
+                self.fail(f"{expr.name}() takes text, but {_written(arg)} is {_type_name(arg)}", expr.pos,
+                          "e.g. lower(v.form)")
+            return replace(expr, arg=arg)
+        if isinstance(expr, ast.AggCall):
+            if not self.aggregates_allowed:
+                self.fail(f"`{expr.label}` is a value of a group of hits: it goes after `find ... where ...` "
+                          "as the output, or in `having` and `order by`", expr.pos)
+            return outputs.aggregate_call(self, expr, scope)
         if isinstance(expr, ast.Func):
             for v in (expr.a, expr.b):
                 if v not in scope:
@@ -363,30 +377,6 @@ class _Checker:
                   "edge sets: " + ", ".join(sorted(edges)) if edges else "this corpus has no edge sets")
         raise AssertionError
 
-    # ---- outputs ---------------------------------------------------------------------
-    def item(self, item: ast.ShowItem, scope: dict[str, LayerInfo]) -> ast.ShowItem:
-        e = item.expr
-        if isinstance(e, ast.Path) and len(e.parts) == 1 and e.parts[0] in scope:
-            e = ast.Path((e.parts[0], "text"), e.pos)   # a bare variable shows its text
-        if isinstance(e, ast.Literal):
-            self.fail("show a value of a variable, e.g. v.form", e.pos)
-        return ast.ShowItem(self.expr(e, scope, None), item.label)
-
-    def output(self, out: ast.Output | None, scope: dict[str, LayerInfo]) -> ast.Output | None:
-        if out is None:
-            return None
-        if isinstance(out, ast.Show):
-            return ast.Show(tuple(self.item(i, scope) for i in out.items))
-        if isinstance(out, ast.Count):
-            return ast.Count(tuple(self.item(i, scope) for i in out.by))
-        if isinstance(out, ast.Aggregate):
-            expr = self.item(out.expr, scope)
-            if out.func in ("mean", "sum") and _type(expr.expr) not in NUMERIC:
-                self.fail(f"{out.func}() needs numbers, but {_written(expr.expr)} is {_type_name(expr.expr)}",
-                          getattr(expr.expr, "pos", None))
-            return ast.Aggregate(out.func, expr, tuple(self.item(i, scope) for i in out.by))
-        raise AssertionError
-
     # ---- the whole query -----------------------------------------------------------------
     def check(self, query: ast.Query) -> Checked:
         scope = self.bind(query.bindings, {})
@@ -412,7 +402,7 @@ class _Checker:
         if query.limit is not None and query.limit < 0:
             self.fail("limit must not be negative", None)
         checked = replace(query, bindings=bindings, where=where, withouts=tuple(withouts),
-                          output=self.output(query.output, scope))
+                          **outputs.check_outputs(self, query, scope))
         if "cross product" not in query.qualifiers:
             self.connected(checked, scope)
         return Checked(checked, scope, tuple(inner_layers), self.catalog, self.text)
@@ -427,18 +417,7 @@ class _Checker:
                 v = parent[v]
             return v
 
-        def atoms(cond: ast.Cond | None):
-            if cond is None:
-                return
-            if isinstance(cond, (ast.And, ast.Or)):
-                for c in cond.items:
-                    yield from atoms(c)
-            elif isinstance(cond, ast.Not):
-                yield from atoms(cond.item)
-            else:
-                yield cond
-
-        for atom in atoms(query.where):
+        for atom in ast.atoms(query.where):
             vs = sorted(ast.vars_in(atom) & set(scope))
             for v in vs[1:]:
                 parent[find(v)] = find(vs[0])
@@ -461,38 +440,6 @@ class _Checker:
                       binding.pos, f"relate them, e.g. `where {b} inside {a}`, or add `allow cross product`")
 
 
-def _type(expr: ast.Expr) -> str:
-    if isinstance(expr, ast.Ref):
-        return expr.type
-    if isinstance(expr, ast.Func):
-        return "length" if expr.name == "distance" else "time"
-    if isinstance(expr, ast.Literal):
-        if isinstance(expr.value, bool):
-            return "bool"
-        if isinstance(expr.value, (int, float)):
-            return "time" if expr.unit in TIME_UNITS else "length" if expr.unit in LENGTH_UNITS else "literal_number"
-        return "str"
-    return "unknown"
-
-
-_TYPE_NAMES = {"str": "text", "int": "a whole number", "float": "a number", "bool": "true/false",
-               "time": "a time in seconds", "length": "a distance", "literal_number": "a number"}
-
-
-def _type_name(expr: ast.Expr) -> str:
-    return _TYPE_NAMES.get(_type(expr), _type(expr))
-
-
-def _written(expr: ast.Expr) -> str:
-    if isinstance(expr, ast.Ref):
-        return expr.written or f"{expr.var}.{expr.name}"
-    if isinstance(expr, ast.Func):
-        return f"{expr.name}({expr.a}, {expr.b})"
-    if isinstance(expr, ast.Literal):
-        return repr(expr.value)
-    return str(expr)
-
-
 def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
     """The token layer in which "directly precedes" is decided (None if the layers share none)."""
     def counted(layer: LayerInfo) -> set[str]:
@@ -508,11 +455,6 @@ def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
         if preferred in common:
             return preferred
     return sorted(common)[0] if common else None
-
-
-def is_time(e: ast.Expr) -> bool:
-    """Whether the value is a time (start, end, duration, gap): whole microseconds in SQL."""
-    return (isinstance(e, ast.Func) and e.name == "gap") or (isinstance(e, ast.Ref) and e.type == "time")
 
 
 def _in_seconds(value: ast.Expr, other: ast.Expr) -> ast.Expr:

@@ -53,9 +53,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from decimal import ROUND_HALF_EVEN, Decimal
 
-from querylang import ast
+from querylang import ast, grouping
 from querylang.catalog import LayerInfo
 from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer, is_time
+from querylang.outputs import CONTEXT_SIDES, words_layer
 from querylang.keys import sentence_key_branches
 from querylang.planner import Plan
 
@@ -67,6 +68,12 @@ DOCUMENTS_VIEW = "documents"
 def ident(name: str) -> str:
     """A double-quoted SQL identifier (names come from the catalog only)."""
     return '"' + name.replace('"', '""') + '"'
+
+
+#: ``fold(x)``: NFC, typographic apostrophes and quotes made plain, then lower case, so
+#: "Don’t" and "don't" are one value
+FOLD_FROM = "\u2019\u2018\u201b\u02bc\u201c\u201d\u201e"
+FOLD_TO = "'" * 4 + '"' * 3
 
 
 def ordinals(layer: LayerInfo, unit: str) -> tuple[str, str]:
@@ -109,6 +116,8 @@ class SqlBuilder:
         self.n_edges = 0
         self.walks: dict[tuple, str] = {}             # (edge set, label, depth) -> CTE name
         self.walk_ctes: list[str] = []
+        #: values already computed as columns (aggregates and group keys, for having)
+        self.computed: dict[ast.Expr, str] = {}
 
     # ---- parameters and names ---------------------------------------------------
     def param(self, value: object) -> str:
@@ -136,8 +145,16 @@ class SqlBuilder:
                 f"CAST({self.col(a, 'end')} - {self.col(a, 'start')} AS BIGINT))")
 
     def expr(self, e: ast.Expr, scope: Scope, unit: str | None = None) -> str:
+        if e in self.computed:
+            return self.computed[e]
         if isinstance(e, ast.Literal):
             return self.literal(e)
+        if isinstance(e, ast.Call):
+            arg = self.expr(e.arg, scope)
+            if e.name == "fold":
+                return (f"lower(translate(nfc_normalize({arg}), {self.param(FOLD_FROM)}, "
+                        f"{self.param(FOLD_TO)}))")
+            return f"{e.name}({arg})"       # lower, length (characters, not bytes)
         if isinstance(e, ast.Func):
             a, b = scope.aliases[e.a], scope.aliases[e.b]
             if e.name == "gap":   # times are per recording: no gap between documents
@@ -518,6 +535,19 @@ class SqlQuery:
     locality: str = ""                # the planner's reason for windowing or not
 
 
+def _word_counts(sb: SqlBuilder, checked: Checked, out: ast.Aggregate) -> str:
+    """The words of every group a ``rate`` lists: each per key evaluated on the words
+    themselves (every key is a document or sentence attribute), ``_d0..`` and ``_w``."""
+    name = words_layer(checked.catalog.layers())
+    layer = checked.catalog.layers()[name]
+    variables = list(checked.layers)
+    scope = Scope({v: "rw" for v in variables}, {v: layer for v in variables}, [variables[0]])
+    keys = [f"{sb.shown(i.expr, scope)} AS _d{k}" for k, i in enumerate(out.per)]
+    frm = sb.from_item(variables[0], scope)
+    group = ", ".join(f"_d{k}" for k in range(len(out.per)))
+    return f"SELECT {', '.join(keys)}, count(*) AS _w FROM {frm} GROUP BY {group}"
+
+
 def _reading_groups(checked: Checked) -> dict[str, list[str]]:
     groups: dict[str, list[str]] = {}
     for v, info in checked.layers.items():
@@ -590,7 +620,8 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     eff_limit = effective_limit(q.limit, limit)
     if plain.kind != "hits":
         return plain
-    if not plan.document_local or eff_limit is None or eff_limit <= 0:
+    # an order of the user's or a sample needs every hit before the first n: no windows
+    if not plan.document_local or eff_limit is None or eff_limit <= 0 or q.order or q.sample:
         return replace(plain, locality=plan.locality)
     w = _statement(checked, plan, limit, context, windowed=True)
     assert w.limit_param is not None
@@ -636,7 +667,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     # select list of the match level
     select: list[str] = []
     variables = [b.var for b in q.bindings]
-    listing = not isinstance(q.output, (ast.Count, ast.Aggregate))
+    listing = not isinstance(q.output, ast.Aggregate)
     if windowed:
         # every variable in the window's documents; a hit whose nodes all lack a start sorts
         # last in the full listing (NULL _hs), so no window may return it
@@ -655,18 +686,23 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
         if listing:   # where each node is, in the user's terms (see place_columns)
             select += [f"{sb.col(a, c)} AS _{c}{i}" for c in place_columns(checked.layers[v])]
     out = q.output
-    items: list[ast.ShowItem] = []
-    if isinstance(out, ast.Show):
-        items = list(out.items)
-    elif isinstance(out, ast.Count):
-        items = list(out.by)
-    elif isinstance(out, ast.Aggregate):
-        items = list(out.by) + [out.expr]
-    # an aggregate over times runs on whole microseconds (an exact sum), in seconds only after
-    time_aggregate = isinstance(out, ast.Aggregate) and is_time(out.expr.expr)
+    items: list[ast.ShowItem] = list(out.items if isinstance(out, ast.Show) else
+                                     out.per if isinstance(out, ast.Aggregate) else ())
     for k, item in enumerate(items):
-        raw = time_aggregate and k == len(items) - 1
-        select.append(f"{sb.expr(item.expr, main) if raw else sb.shown(item.expr, main)} AS _x{k}")
+        select.append(f"{sb.shown(item.expr, main)} AS _x{k}")
+    calls: list[ast.AggCall] = []
+    args: list[ast.Expr] = []
+    if isinstance(out, ast.Aggregate):
+        # aggregates over times run on whole microseconds (an exact sum), in seconds only after
+        calls = grouping.calls_in(out)
+        args = grouping.arguments(calls)
+        for j, arg in enumerate(args):
+            node = isinstance(arg, ast.Ref) and arg.kind == "node"     # count distinct v
+            select.append(f"{sb.col(main.aliases[arg.var], 'id') if node else sb.expr(arg, main)} AS _a{j}")
+    else:
+        for k, o in enumerate(q.order):
+            if o.expr not in CONTEXT_SIDES:
+                select.append(f"{sb.expr(o.expr, main)} AS _o{k}")
     starts = [f"{sb.col(main.aliases[v], 'start')}" for v in variables]
     ends = [f"{sb.col(main.aliases[v], 'end')}" for v in variables]
     select.append(f"least({', '.join(starts)}) AS _hs" if len(starts) > 1 else f"{starts[0]} AS _hs")
@@ -697,31 +733,28 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
                         f"ON r{n}.s = {last}._sent{i0} WHERE g{n}.n = r{n}.n)")
             last = f"k{n}"
 
+    if q.sample is not None:
+        # the hits whose hash under the seed is smallest: a uniform sample (a hash is a fixed
+        # function of seed and node ids, so threads and runs cannot change it).  The hash of the
+        # text "seed:id:id..": DuckDB's hash(seed, id) mixes the seed in too weakly, and
+        # samples over consecutive seeds failed the chi-square test (tests/test_query_sample.py)
+        ids = ", ".join(f"_id{i}" for i in range(len(variables)))
+        ctes.append(f"smp AS (SELECT * FROM {last} ORDER BY hash(concat_ws(':', {sb.param(int(q.sample.seed))}, "
+                    f"{ids})), {ids} LIMIT {sb.param(int(q.sample.size))})")
+        last = "smp"
+
     eff_limit = effective_limit(q.limit, limit)
     limit_sql = f" LIMIT {sb.param(int(eff_limit))}" if eff_limit is not None else ""
     limit_param = len(sb.params) - 1 if eff_limit is not None else None
-    order = ", ".join(["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])
+    order = ", ".join([f"_o{k} {'DESC' if o.descending else 'ASC'} NULLS LAST"
+                       for k, o in enumerate(q.order) if o.expr not in CONTEXT_SIDES]
+                      + ["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])
 
-    if isinstance(out, (ast.Count, ast.Aggregate)):
-        by = out.by
-        keys = [f"_x{k}" for k in range(len(by))]
-        cols = [f"{key} AS c{k}" for k, key in enumerate(keys)]
-        names = [i.label for i in by]
-        if isinstance(out, ast.Aggregate):
-            fn = {"mean": "avg", "min": "min", "max": "max", "sum": "sum"}[out.func]
-            value = f"{fn}(_x{len(by)})"
-            cols.append(f"{to_seconds(value) if time_aggregate else value} AS c{len(cols)}")
-            names.append(out.expr.label)
-        cols.append(f"count(*) AS c{len(cols)}")
-        names.append("count")
-        group = f" GROUP BY {', '.join(keys)}" if keys else ""
-        if isinstance(out, ast.Count) and keys:
-            order_by = " ORDER BY count(*) DESC, " + ", ".join(f"{k} ASC NULLS LAST" for k in keys)
-        elif keys:
-            order_by = " ORDER BY " + ", ".join(f"{k} ASC NULLS LAST" for k in keys)
-        else:
-            order_by = ""
-        sql = f"{with_(ctes, bool(sb.walk_ctes))} SELECT {', '.join(cols)} FROM {last}{group}{order_by}{limit_sql}"
+    if isinstance(out, ast.Aggregate):
+        rate = any(i.call.func == "rate" for i in out.items)
+        words = _word_counts(sb, checked, out) if rate else None
+        sql, names = grouping.group_statement(sb, out, with_(ctes, bool(sb.walk_ctes)), last, calls, args,
+                                              limit_sql, q.order, words)
         return SqlQuery(sql, sb.params, names, "aggregate", limit_param=limit_param)
 
     ctes.append(f"l AS (SELECT * FROM {last} ORDER BY {order}{limit_sql})")

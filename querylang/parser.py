@@ -43,8 +43,16 @@ TERMINAL_NAMES = {
     "GIVE_OR_TAKE": "give or take",
     "SAME_SENTENCE": "in the same sentence",
     "WITHIN": "within",
-    "AGGREGATE": "mean/min/max/sum",
+    "AGGREGATE": "mean/min/max/sum/median/stdev/quantile",
     "FUNCTION": "distance/gap",
+    "VALUE_FUNCTION": "lower/fold/length",
+    "COUNT": '"count"',
+    "RATE": '"rate"',
+    "BY": '"by"',
+    "HAVING": '"having"',
+    "DIRECTION": "asc or desc",
+    "CONTEXT_SIDE": "left or right",
+    "_ORDER_BY": '"order by"',
     "UNIT": "a unit (ms, s, words, tokens, chars)",
     "$END": "the end of the query",
 }
@@ -126,6 +134,8 @@ class ToAst(Transformer):
         qualifiers: set[str] = set()
         output = None
         limit = None
+        order: tuple[ast.OrderItem, ...] = ()
+        sample = None
         for clause in clauses:
             kind, value = clause
             if kind == "find":
@@ -140,7 +150,11 @@ class ToAst(Transformer):
                 output = value
             elif kind == "limit":
                 limit = value
-        return ast.Query(bindings, where, tuple(withouts), frozenset(qualifiers), output, limit)
+            elif kind == "order":
+                order = value
+            elif kind == "sample":
+                sample = value
+        return ast.Query(bindings, where, tuple(withouts), frozenset(qualifiers), output, limit, order, sample)
 
     def find_clause(self, *bindings):
         return ("find", tuple(bindings))
@@ -170,19 +184,53 @@ class ToAst(Transformer):
     def show(self, *items):
         return ("output", ast.Show(tuple(items)))
 
-    def count(self, by=()):
-        return ("output", ast.Count(tuple(by)))
-
-    def aggregate(self, func, expr, by=()):
-        name = str(func)
-        item = ast.ShowItem(expr, f"{name}({_label(expr)})")
-        return ("output", ast.Aggregate(name, item, tuple(by)))
+    def aggregate(self, *parts):
+        items = tuple(p for p in parts if isinstance(p, ast.AggItem))
+        per = next((p[1] for p in parts if isinstance(p, tuple) and p[0] == "per"), ())
+        having, having_pos = next((p[1:] for p in parts if isinstance(p, tuple) and p[0] == "having"),
+                                  (None, ast.NOWHERE))
+        return ("output", ast.Aggregate(items, per, having, having_pos))
 
     def show_item(self, expr, label=None):
         return ast.ShowItem(expr, str(label) if label is not None else _label(expr))
 
-    def by_clause(self, *exprs):
-        return tuple(ast.ShowItem(e, _label(e)) for e in exprs)
+    def agg_item(self, call, label=None):
+        return ast.AggItem(call, str(label) if label is not None else call.label)
+
+    def count_all(self, token):
+        return ast.AggCall("count", None, None, _pos(token))
+
+    def count_distinct(self, token, expr):
+        return ast.AggCall("count distinct", expr, None, _pos(token))
+
+    def agg_function(self, name, expr, q=None):
+        return ast.AggCall(str(name), expr, _number(str(q)) if q is not None else None, _pos(name))
+
+    def rate(self, token):
+        return ast.AggCall("rate", None, None, _pos(token))
+
+    def per_clause(self, *exprs):
+        return ("per", tuple(ast.ShowItem(e, _label(e)) for e in exprs))
+
+    def by_refused(self, token, *exprs):
+        keys = ", ".join(_label(e) for e in exprs)
+        raise PlacedError("groups are named with `per`: `by` is kept for distance bounds (`by at most 3 words`)",
+                          _pos(token), f"write `per {keys}`")
+
+    def having_clause(self, token, cond):
+        return ("having", cond, _pos(token))
+
+    def order_clause(self, *items):
+        return ("order", tuple(items))
+
+    def order_item(self, key, direction=None):
+        pos = _pos(key) if hasattr(key, "line") else _expr_pos(key)
+        if hasattr(key, "type") and key.type == "CONTEXT_SIDE":
+            key = str(key)
+        return ast.OrderItem(key, direction is not None and str(direction) == "desc", pos)
+
+    def sample_clause(self, size, seed=None):
+        return ("sample", ast.Sample(int(size), int(seed) if seed is not None else 0, _pos(size)))
 
     def limit_clause(self, n):
         return ("limit", int(n))
@@ -272,6 +320,9 @@ class ToAst(Transformer):
     def func(self, name, a, b):
         return ast.Func(str(name), str(a), str(b), _pos(name))
 
+    def call(self, name, arg):
+        return ast.Call(str(name), arg, _pos(name))
+
     def path(self, *parts):
         return ast.Path(tuple(str(p) for p in parts), _pos(parts[0]))
 
@@ -296,8 +347,8 @@ def _label(expr: object) -> str:
     """The column name an expression gets in the result table (its written form)."""
     if isinstance(expr, ast.Path):
         return expr.text
-    if isinstance(expr, ast.Func):
-        return f"{expr.name}({expr.a}, {expr.b})"
+    if isinstance(expr, (ast.Func, ast.Call, ast.AggCall)):
+        return ast._expr_label(expr)
     if isinstance(expr, ast.Literal):
         return str(expr.value) + (expr.unit or "")
     return str(expr)

@@ -132,10 +132,11 @@ def test_summary_growth_exponent_is_one_for_linear_growth():
 
 
 def test_strip_output_leaves_the_hit_listing():
-    q = '# a comment\nfind a = spoken, b = spoken where a directly precedes b mean(gap(a, b)) by b.speaker\n'
+    q = '# a comment\nfind a = spoken, b = spoken where a directly precedes b mean(gap(a, b)) per b.speaker\n'
     assert baselines.strip_output(q) == "find a = spoken, b = spoken where a directly precedes b"
-    assert baselines.strip_output('find t = word(form ~ "#x") count by t.upos') == 'find t = word(form ~ "#x")'
+    assert baselines.strip_output('find t = word(form ~ "#x") count per t.upos') == 'find t = word(form ~ "#x")'
     assert baselines.strip_output("find t = word count") == "find t = word"
+    assert baselines.strip_output("find t = word count, rate per t.doc having count > 2") == "find t = word"
     assert baselines.strip_output("find t = word show t.lemma") == "find t = word show t.lemma"
 
 

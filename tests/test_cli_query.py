@@ -130,7 +130,7 @@ def test_jsonl_file(small, tmp_path):
 def test_parquet_file_keeps_types(small, tmp_path):
     path, corpus = small
     out = tmp_path / "hits.parquet"
-    query = 'find t = word(upos = "NOUN") count by t.lemma'
+    query = 'find t = word(upos = "NOUN") count per t.lemma'
     done = strata("query", path, query, "--format", "parquet", "-o", str(out))
     assert done.returncode == 0, done.stderr
     table = pq.read_table(out)

@@ -3,6 +3,7 @@ open treebank (UD English GUM, dev split) checked against the `conllu` reference
 from __future__ import annotations
 
 from collections import Counter
+from fractions import Fraction
 
 import conllu
 import pytest
@@ -72,7 +73,7 @@ def test_limit_argument_and_clause_take_the_smaller(ferry):
 
 def test_count_by_sorted_by_frequency_then_key(ferry):
     con, cat = ferry
-    hits = run_query(con, cat, "find t = word count by t.upos")
+    hits = run_query(con, cat, "find t = word count per t.upos")
     got = [(r["t.upos"], r["count"]) for r in hits.rows()]
     counts = Counter(r["upos"] for r in rows(con, 'SELECT upos FROM "word"'))
     assert got == sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
@@ -84,13 +85,16 @@ def test_numeric_aggregates(ferry):
     con, cat = ferry
     data = rows(con, 'SELECT form, t_end - t_start AS d FROM "token"')     # whole microseconds
     for func, ref in (("mean", lambda v: sum(v) / len(v)), ("min", min), ("max", max), ("sum", sum)):
-        hits = run_query(con, cat, f"find w = token {func}(w.duration) by w.form")
+        hits = run_query(con, cat, f"find w = token {func}(w.duration) per w.form")
         by_form: dict[str, list[float]] = {}
         for r in data:
             by_form.setdefault(r["form"], []).append(r["d"])
         got = {r["w.form"]: r[f"{func}(w.duration)"] for r in hits.rows()}
         assert got == pytest.approx({k: ref(v) / 1_000_000 for k, v in by_form.items()})   # in seconds
-        assert [r["w.form"] for r in hits.rows()] == sorted(by_form)
+        # the default order: the aggregate's value descending, then the key (exact fractions here)
+        want = sorted(by_form, key=lambda k: (-Fraction(sum(by_form[k]), len(by_form[k])) if func == "mean"
+                                              else -ref(by_form[k]), k))
+        assert [r["w.form"] for r in hits.rows()] == want
 
 
 def test_without_finds_heads_lacking_a_dependent(ferry):
@@ -191,7 +195,7 @@ def test_gum_pronoun_subjects_of_verbs_by_lemma(gum):
             if t["deprel"] == "nsubj" and t["upos"] == "PRON" and head and head["upos"] == "VERB":
                 want[head["lemma"]] += 1
     hits = corpus.query('find s = word(deprel = "nsubj", upos = "PRON"), v = word(upos = "VERB") '
-                        'where s depends on v count by v.lemma')
+                        'where s depends on v count per v.lemma')
     got = [(r["v.lemma"], r["count"]) for r in hits.rows()]
     assert got == sorted(want.items(), key=lambda kv: (-kv[1], kv[0]))
 
@@ -242,7 +246,7 @@ def test_gum_plural_nouns_by_genre(gum):
         genre = s.metadata.get("meta::genre", genre)
         want[genre] += sum(1 for t in syntactic_words(s)
                            if t["upos"] == "NOUN" and (t["feats"] or {}).get("Number") == "Plur")
-    hits = corpus.query('find t = word(upos = "NOUN", feats.Number = "Plur") count by t.doc.genre')
+    hits = corpus.query('find t = word(upos = "NOUN", feats.Number = "Plur") count per t.doc.genre')
     assert {r["t.doc.genre"]: r["count"] for r in hits.rows()} == {k: v for k, v in want.items() if v}
 
 

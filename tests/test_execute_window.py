@@ -95,7 +95,7 @@ def test_a_query_not_tied_to_one_document_is_not_windowed(gum, full_listings, qu
 
 def test_aggregates_are_never_windowed(gum):
     _, store = gum
-    compiled = compile_query('find t = word(upos = "VERB") count by t.lemma', store, limit=20)
+    compiled = compile_query('find t = word(upos = "VERB") count per t.lemma', store, limit=20)
     assert compiled.kind == "aggregate" and compiled.state.sql.window is None
 
 

@@ -25,7 +25,7 @@ from tests.test_cli_query import strata
 
 SENTENCES = 60
 AWKWARD = 'find t = word(form in [",", "\\"", "“", "”", "–"]) show t.lemma, t.misc, t.feats'
-GROUPED = "find t = word count by t.feats.Number, t.upos"        # many words have no Number
+GROUPED = "find t = word count per t.feats.Number, t.upos"        # many words have no Number
 
 
 @pytest.fixture(scope="module")

@@ -64,7 +64,7 @@ def test_two_variables_each_with_its_own_place(gum):
 
 def test_a_node_s_doc_and_sentence_are_names(gum):
     corpus, parsed = gum
-    by_doc = corpus.query("find t = word count by t.doc").rows()
+    by_doc = corpus.query("find t = word count per t.doc").rows()
     want = Counter(d for d, *_ in words_of(parsed))
     assert {r["t.doc"]: r["count"] for r in by_doc} == dict(want)
     listed = corpus.query('find t = word(upos = "PROPN") show t.doc, t.sentence').rows()
@@ -76,10 +76,10 @@ def test_a_node_s_doc_and_sentence_are_names(gum):
     'find t = word({k} = "{v}") count',
     'find t = word where t.{k} = "{v}" count',
     'find t = word(upos = "NOUN") show t.{k} limit 3',
-    "find t = word count by t.{k}",
+    "find t = word count per t.{k}",
     'find s = sentence without t = word({k} = "{v}") where t inside s count',
     'find t = word without u = word(upos = "PUNCT") where u directly follows t and u.{k} = "{v}" count',
-    "find t = word max(t.char_end) by t.{k}",
+    "find t = word max(t.char_end) per t.{k}",
 ])
 def test_doc_attributes_work_wherever_sentence_attributes_do(gum, template):
     corpus, parsed = gum

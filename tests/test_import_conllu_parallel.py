@@ -21,7 +21,7 @@ QUERIES = [
     'find a = mention, b = mention where a previous mention of b count',
     'find a = mention, b = mention where a same entity as b count',
     'find a = word(upos = "ADJ"), o = word(deprel = "obj") where a under o count',
-    'find t = word(feats.Number = "Plur") count by t.upos',
+    'find t = word(feats.Number = "Plur") count per t.upos',
 ]
 
 

@@ -140,7 +140,7 @@ def test_pronoun_subjects_of_verbs(split):
             if t["upos"] == "PRON" and t["deprel"] == "nsubj" and head and head["upos"] == "VERB":
                 want[head["lemma"]] += 1
     assert _count(corpus, PRONOUN_SUBJECTS + " count") == sum(want.values()) > 0
-    got = [(r["v.lemma"], r["count"]) for r in corpus.query(PRONOUN_SUBJECTS + " count by v.lemma").rows()]
+    got = [(r["v.lemma"], r["count"]) for r in corpus.query(PRONOUN_SUBJECTS + " count per v.lemma").rows()]
     top = sorted(want.items(), key=lambda kv: (-kv[1], kv[0]))
     assert got[:10] == top[:10]
     assert len(got) == len(want)

@@ -87,7 +87,7 @@ def test_ident_escapes_double_quotes():
 
 def test_explain_lists_passes_output(corpus):
     con, cat = corpus
-    compiled = compile_query('find s = word(deprel = "nsubj"), v = word where s depends on v count by v.lemma', cat)
+    compiled = compile_query('find s = word(deprel = "nsubj"), v = word where s depends on v count per v.lemma', cat)
     text = compiled.explain_text(con)
     for part in ("variables:", "join order:", "sql:", "parameters:", "$1 = 'nsubj'", "duckdb plan:"):
         assert part in text

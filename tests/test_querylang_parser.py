@@ -21,9 +21,10 @@ def test_bindings_conditions_and_show():
 
 
 def test_comma_inside_binding_means_and():
-    q = parse('find s = word(deprel = "nsubj", upos = "PRON"), v = word where s depends on v count by v.lemma')
+    q = parse('find s = word(deprel = "nsubj", upos = "PRON"), v = word where s depends on v count per v.lemma')
     assert isinstance(q.bindings[0].cond, ast.And) and len(q.bindings[0].cond.items) == 2
-    assert q.output == ast.Count((ast.ShowItem(ast.Path(("v", "lemma")), "v.lemma"),))
+    assert q.output == ast.Aggregate((ast.AggItem(ast.AggCall("count"), "count"),),
+                                     (ast.ShowItem(ast.Path(("v", "lemma")), "v.lemma"),))
 
 
 def test_without_clause_and_count():
@@ -31,7 +32,7 @@ def test_without_clause_and_count():
     assert len(q.withouts) == 1
     w = q.withouts[0]
     assert w.bindings[0].var == "s" and w.cond.name == "depends on"
-    assert q.output == ast.Count(())
+    assert q.output == ast.Aggregate((ast.AggItem(ast.AggCall("count"), "count"),))
 
 
 def test_units_functions_and_modifiers():
@@ -126,8 +127,9 @@ def test_string_escapes():
 
 
 def test_aggregates_and_comments():
-    q = parse("find w = token # every token\nmean(w.duration) by w.form")
-    assert q.output == ast.Aggregate("mean", ast.ShowItem(ast.Path(("w", "duration")), "mean(w.duration)"),
+    q = parse("find w = token # every token\nmean(w.duration) per w.form")
+    call = ast.AggCall("mean", ast.Path(("w", "duration")))
+    assert q.output == ast.Aggregate((ast.AggItem(call, "mean(w.duration)"),),
                                      (ast.ShowItem(ast.Path(("w", "form")), "w.form"),))
 
 

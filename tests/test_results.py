@@ -87,5 +87,5 @@ def test_render_table_fits_the_width_and_keeps_the_show_column(width):
 
 def test_render_table_of_an_aggregate():
     con, cat = ferry_corpus()
-    out = run_query(con, cat, "find t = word count by t.upos").render_table(80)
+    out = run_query(con, cat, "find t = word count per t.upos").render_table(80)
     assert out.splitlines()[0].split() == ["t.upos", "count"]

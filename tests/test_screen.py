@@ -65,7 +65,7 @@ def test_across_cuts_only_the_context_and_marks_it(corpus):
 
 
 def test_missing_group_keys_say_so(corpus):
-    hits = corpus.query("find t = word count by t.feats.Number")
+    hits = corpus.query("find t = word count per t.feats.Number")
     out = hits.render_table(80)
     none = [r for r in hits.rows() if r["t.feats.Number"] is None]
     assert len(none) == 1
