@@ -37,7 +37,8 @@ import networkx as nx
 from benchmarks.import_bench import DEFAULT_DATA, BenchError, count_tokens, replicate
 from engine import Corpus
 from engine.execute import compile_query
-from querylang.compiler import SqlBuilder, with_
+from querylang.compiler import SqlBuilder
+from querylang.sqltext import with_
 
 DEV_FILE = "en_gum-ud-dev.conllu"
 EDGE_SET = "enhanced"

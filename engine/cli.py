@@ -135,7 +135,10 @@ def query(
     output: Optional[Path] = typer.Option(None, "-o", "--output", help="file for every hit: .csv, .tsv, "
                                           ".jsonl or .parquet"),
     limit: Optional[int] = typer.Option(None, "--limit", help="at most this many hits"),
-    context: int = typer.Option(5, "--context", help="surface tokens of context left and right"),
+    context: int = typer.Option(5, "--context", help="words of context left and right of each hit (surface "
+                                "tokens: a contraction is one), inside the hit's sentence"),
+    cross_sentences: bool = typer.Option(False, "--cross-sentences", help="let the context run on into the "
+                                         "sentences before and after the hit's"),
 ) -> None:
     """Run a query and print its hit table, or save every hit to a file."""
     from engine.output_files import check_writable, hit_format
@@ -145,7 +148,7 @@ def query(
     elif fmt == "parquet":
         raise StrataError("parquet output needs a file: add -o FILE")
     q = _query_text(text, file)
-    hits = _open(corpus).query(q, limit=limit, context=context)
+    hits = _open(corpus).query(q, limit=limit, context=context, cross_sentences=cross_sentences)
     write_hits(hits, fmt, output, limit)
     for note in hits.notes:
         err.print(f"note: {note}", markup=False)

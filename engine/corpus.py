@@ -107,10 +107,11 @@ class Corpus:
             self._con.close()
             self._con = None
 
-    def query(self, text: str, *, limit: int | None = None, context: int = 5):
+    def query(self, text: str, *, limit: int | None = None, context: int = 5, cross_sentences: bool = False):
         """Run a query; returns a hit table (:class:`engine.results.Hits`)."""
         from engine.execute import run_query
-        return run_query(self._query_connection(), self.store, text, limit=limit, context=context)
+        return run_query(self._query_connection(), self.store, text, limit=limit, context=context,
+                         cross_sentences=cross_sentences)
 
     def explain(self, text: str) -> str:
         from engine.execute import compile_query

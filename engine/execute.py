@@ -22,7 +22,8 @@ from engine.errors import StrataError
 from engine.results import Hits
 from querylang.ast import Query, Show
 from querylang.catalog import Catalog
-from querylang.compiler import DOCUMENTS_VIEW, effective_limit, ident
+from querylang.compiler import effective_limit
+from querylang.sqltext import DOCUMENTS_VIEW, ident
 from querylang.pipeline import Compilation, run_passes
 
 
@@ -103,19 +104,21 @@ def _pretty_sql(sql: str) -> list[str]:
     return [line.rstrip() for line in broken.splitlines()]
 
 
-def compile_query(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5) -> CompiledQuery:
+def compile_query(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5,
+                  cross_sentences: bool = False) -> CompiledQuery:
     """Parse, check, plan and translate ``text``; raises StrataError on any mistake in it."""
     if context < 0:
         raise StrataError("context must be 0 or more tokens")
     if limit is not None and limit < 0:
         raise StrataError("limit must not be negative")
-    return CompiledQuery(text, run_passes(text, catalog, limit=limit, context=context))
+    return CompiledQuery(text, run_passes(text, catalog, limit=limit, context=context,
+                                          cross_sentences=cross_sentences))
 
 
 def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
-              limit: int | None = None, context: int = 5) -> Hits:
+              limit: int | None = None, context: int = 5, cross_sentences: bool = False) -> Hits:
     """Every match of ``text`` in document order (or the aggregate it asks for)."""
-    compiled = compile_query(text, catalog, limit=limit, context=context)
+    compiled = compile_query(text, catalog, limit=limit, context=context, cross_sentences=cross_sentences)
     rounds: list[tuple[int, int, int]] = []
     try:
         if compiled.state.sql.window is not None:

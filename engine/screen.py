@@ -7,7 +7,7 @@ cutting columns off the right edge.  Two layouts:
 
 * **across**: one line per row, when every column fits at its full width, with the left and
   right context cut from their outer ends (marked "…") down to no less than ``CONTEXT_MIN``
-  characters, then the match (cut at its end; each variable's text has its own column);
+  characters, then the hit (cut at its end; each variable's text has its own column);
 * **down**: one block per row, a label and its whole value per line, wrapped at the width,
   when the columns do not fit across.  Nothing is cut.
 
@@ -30,7 +30,7 @@ import pyarrow as pa
 from rich.cells import cell_len
 
 MISSING = "(missing)"
-CONTEXT = ("left", "match", "right")
+CONTEXT = ("left", "hit", "right")
 CONTEXT_MIN = 10      # the narrowest left or right context worth showing across
 SEP = "  "
 
@@ -95,8 +95,8 @@ def _across(columns: list[str], cells: list[list[str]], numeric: set[str], width
     natural = [max([cell_len(c)] + [cell_len(row[i]) for row in cells]) for i, c in enumerate(columns)]
     widths = list(natural)
     over = sum(widths) + len(SEP) * (len(widths) - 1) - width
-    # the context first, then the match (whose nodes' texts have columns of their own)
-    for group in (("left", "right"), ("match",)):
+    # the context first, then the hit (whose nodes' texts have columns of their own)
+    for group in (("left", "right"), ("hit",)):
         squeezable = [i for i, c in enumerate(columns) if c in group]
         for i in sorted(squeezable, key=lambda i: -widths[i]):
             if over <= 0:
@@ -110,7 +110,7 @@ def _across(columns: list[str], cells: list[list[str]], numeric: set[str], width
     right = {"left"} | numeric
 
     def fit(text: str, w: int, align_right: bool, cut_left: bool) -> str:
-        if cell_len(text) > w:     # only the context and match are ever cut: the outer end
+        if cell_len(text) > w:     # only the context and hit are ever cut: the outer end
             text = "…" + _tail(text, w - 1) if cut_left else _head(text, w - 1) + "…"
         pad = " " * (w - cell_len(text))
         return pad + text if align_right else text + pad

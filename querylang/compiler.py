@@ -56,19 +56,11 @@ from decimal import ROUND_HALF_EVEN, Decimal
 from querylang import ast, grouping
 from querylang.catalog import LayerInfo
 from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer, is_time
+from querylang.listing import listing_statement, place_columns
 from querylang.outputs import CONTEXT_SIDES, words_layer
+from querylang.sqltext import DOC_VIEW, DOCUMENTS_VIEW, SENTENCE_VIEW, ident, to_seconds, with_
 from querylang.keys import sentence_key_branches
 from querylang.planner import Plan
-
-SENTENCE_VIEW = "sentence"
-DOC_VIEW = "doc"
-DOCUMENTS_VIEW = "documents"
-
-
-def ident(name: str) -> str:
-    """A double-quoted SQL identifier (names come from the catalog only)."""
-    return '"' + name.replace('"', '""') + '"'
-
 
 #: ``fold(x)``: NFC, typographic apostrophes and quotes made plain, then lower case, so
 #: "Don’t" and "don't" are one value
@@ -497,11 +489,6 @@ def or_branches(where: ast.Cond | None, variables: set[str]) -> list[ast.Cond | 
     return [where]
 
 
-def with_(ctes: list[str], recursive: bool) -> str:
-    """The WITH clause; RECURSIVE only when a walk needs it (it changes nothing else)."""
-    return f"WITH {'RECURSIVE ' if recursive else ''}{', '.join(ctes)}"
-
-
 def _unit_of(e: ast.Expr) -> str | None:
     return e.unit if isinstance(e, ast.Literal) and e.unit in LENGTH_UNITS else None
 
@@ -556,23 +543,6 @@ def _reading_groups(checked: Checked) -> dict[str, list[str]]:
     return groups
 
 
-def kwic_layer(checked: Checked) -> LayerInfo | None:
-    """The layer whose units make up the keyword-in-context columns: surface tokens first
-    (a contraction is one unit of context, as it is written)."""
-    layers = checked.catalog.layers()
-    first = next(iter(checked.layers.values()))
-    for name in (first.token_layer, first.word_layer, first.name if first.kind == "sequence" else None, "token"):
-        if name and name in layers and layers[name].kind == "sequence":
-            return layers[name]
-    return None
-
-
-def place_columns(layer: LayerInfo) -> list[str]:
-    """Stored columns that say where a node is, beyond its document, sentence and characters:
-    its CoNLL-U ID (``cid``) where the layer has one, its time span where it has times."""
-    return (["cid"] if "cid" in layer.attrs else []) + (["t_start", "t_end"] if layer.time else [])
-
-
 US_PER = {"ms": 1_000, "s": 1_000_000}
 
 
@@ -583,16 +553,6 @@ def microseconds(value, unit: str) -> int:
     (300000, 250000, 1186000)
     """
     return int((Decimal(str(value)) * US_PER[unit]).to_integral_value(rounding=ROUND_HALF_EVEN))
-
-
-def to_seconds(us_sql: str) -> str:
-    return f"({us_sql} / 1000000.0)"
-
-
-def one_line(sb: SqlBuilder, text_sql: str) -> str:
-    """SQL for the text with every line break (CRLF, LF, CR) made one space (bound parameters:
-    the SQL text holds no literal)."""
-    return f"regexp_replace({text_sql}, {sb.param(chr(13) + chr(10) + '|' + chr(13) + '|' + chr(10))}, {sb.param(' ')}, {sb.param('g')})"
 
 
 #: the largest LIMIT DuckDB takes (BIGINT); a larger one cannot change any result
@@ -609,13 +569,14 @@ def effective_limit(in_query: int | None, given: int | None) -> int | None:
     return min(limits + [LIMIT_MAX]) if limits else None
 
 
-def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: int = 5) -> SqlQuery:
+def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: int = 5,
+           cross_sentences: bool = False) -> SqlQuery:
     """The whole statement: matches (m), reading filter (k), output with KWIC.
 
     A listing with a limit whose hits each lie in one document (``plan.document_local``) also
     gets a windowed form of the same statement (:class:`Window`) for the execution layer.
     """
-    plain = _statement(checked, plan, limit, context, windowed=False)
+    plain = _statement(checked, plan, limit, context, cross_sentences, windowed=False)
     q = checked.query
     eff_limit = effective_limit(q.limit, limit)
     if plain.kind != "hits":
@@ -623,13 +584,14 @@ def to_sql(checked: Checked, plan: Plan, *, limit: int | None = None, context: i
     # an order of the user's or a sample needs every hit before the first n: no windows
     if not plan.document_local or eff_limit is None or eff_limit <= 0 or q.order or q.sample:
         return replace(plain, locality=plan.locality)
-    w = _statement(checked, plan, limit, context, windowed=True)
+    w = _statement(checked, plan, limit, context, cross_sentences, windowed=True)
     assert w.limit_param is not None
     window = Window(w.sql, w.params, doc_lo=0, doc_hi=1, limit=w.limit_param, anchor=plan.order[0])
     return replace(plain, window=window, locality=plan.locality)
 
 
-def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *, windowed: bool) -> SqlQuery:
+def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, cross_sentences: bool, *,
+               windowed: bool) -> SqlQuery:
     """One statement; ``windowed`` adds ``lo <= doc < hi`` for every variable as $1 and $2."""
     q = checked.query
     sb = SqlBuilder(checked, plan)
@@ -746,9 +708,6 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
     eff_limit = effective_limit(q.limit, limit)
     limit_sql = f" LIMIT {sb.param(int(eff_limit))}" if eff_limit is not None else ""
     limit_param = len(sb.params) - 1 if eff_limit is not None else None
-    order = ", ".join([f"_o{k} {'DESC' if o.descending else 'ASC'} NULLS LAST"
-                       for k, o in enumerate(q.order) if o.expr not in CONTEXT_SIDES]
-                      + ["_hs", "_he"] + [f"_id{i}" for i in range(len(variables))])
 
     if isinstance(out, ast.Aggregate):
         rate = any(i.call.func == "rate" for i in out.items)
@@ -757,89 +716,7 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, *,
                                               limit_sql, q.order, words)
         return SqlQuery(sql, sb.params, names, "aggregate", limit_param=limit_param)
 
-    ctes.append(f"l AS (SELECT * FROM {last} ORDER BY {order}{limit_sql})")
-    cols: list[str] = []
-    names: list[str] = []
-    joins: list[str] = []
-    d = ident("documents")
-    sentence = checked.catalog.layers().get(SENTENCE_VIEW)
-    sentence_ids = sentence is not None and "sent_id" in sentence.attrs
-    for i in range(len(variables)):
-        joins.append(f"LEFT JOIN {d} AS t{i} ON t{i}.{ident('doc')} = l._doc{i}")
-        if sentence_ids:
-            joins.append(f"LEFT JOIN {ident(SENTENCE_VIEW)} AS st{i} ON st{i}.{ident('id')} = l._sent{i}")
-    # the hit's place: the document and sentence of its first variable
-    cols += [f"t0.{ident('name')}", f"st0.{ident('sent_id')}" if sentence_ids else "CAST(NULL AS VARCHAR)"]
-    names += ["doc", "sentence"]
-    for i, v in enumerate(variables):
-        t, layer = f"t{i}", checked.layers[v]
-        base = f"{t}.{ident('base')}"
-        cols += [f"{t}.{ident('name')}", f"st{i}.{ident('sent_id')}" if sentence_ids else "CAST(NULL AS VARCHAR)"]
-        names += [f"{v}.doc", f"{v}.sentence"]
-        if "cid" in place_columns(layer):
-            cols.append(f"l._cid{i}")
-            names.append(f"{v}.conllu_id")
-        cols += [f"substr({t}.{ident('text')}, CAST(l._start{i} - {base} + 1 AS BIGINT), "
-                 f"CAST(l._end{i} - l._start{i} AS BIGINT))",
-                 f"l._start{i} - {base}", f"l._end{i} - {base}"]
-        names += [f"{v}.text", f"{v}.char_start", f"{v}.char_end"]
-        if "t_start" in place_columns(layer):
-            cols += [to_seconds(f"l._t_start{i}"), to_seconds(f"l._t_end{i}")]
-            names += [f"{v}.start", f"{v}.end"]
-        if layer.readings:
-            cols.append(f"l._read{i}")
-            names.append(f"{v}.reading")
-        cols.append(f"l._id{i}")
-        names.append(f"{v}.node")
-    for k, item in enumerate(items):
-        if item.label in names:          # e.g. "show a.text": already a column of the hit table
-            continue
-        cols.append(f"l._x{k}")
-        names.append(item.label)
-    # keyword in context: N words before the first and after the last character of the hit.
-    # The word boundaries are found in their own CTE (x), before any document text is joined:
-    # carrying whole texts through the ASOF joins' sorts made listings ~5x slower.
-    text0, base0 = f"t0.{ident('text')}", f"t0.{ident('base')}"
-    words = kwic_layer(checked)
-    if words is not None and context > 0:
-        w = ident(words.name)
-        n = sb.param(int(context) - 1)
-        dcol, ocol, scol, ecol, icol = (ident(x) for x in ("doc", "ord", "start", "end", "id"))
-        ranges = _has_range_relation(q.where) or any(_has_range_relation(x.cond) for x in q.withouts)
-        if windowed:
-            # context words only from the window's documents; a subquery, not a CTE: see below
-            w = (f"(SELECT {dcol}, {ocol}, {scol}, {ecol}, {icol} FROM {w} "
-                 f"WHERE {dcol} >= {doc_lo} AND {dcol} < {doc_hi})")
-        elif limit_sql and (not ranges or sb.walk_ctes):
-            # a few hits: look for context only among the words of their documents (every context
-            # join tests the document), so the ASOF joins sort those words, not the whole layer;
-            # `find t = token(upos = "VERB")` with limit 20 at 1e6 tokens: 116 -> 55 ms.
-            # Not with range joins: DuckDB 2.0 plans no IEJoin in a statement that holds a
-            # materialized CTE (this one, and `l` read twice), but a piecewise merge join:
-            # benchmarks/queries/04 as a limit-20 listing at 1e6 tokens took 17 s that way, 0.3 s without
-            ctes.append(f"kw AS MATERIALIZED (SELECT {dcol}, {ocol}, {scol}, {ecol}, {icol} FROM {w} "
-                        f"WHERE {dcol} IN (SELECT DISTINCT _doc0 FROM l))")
-            w = "kw"
-        kw_joins = " ".join([
-            f"LEFT JOIN (SELECT {dcol}, {ident('base')}, {ident('length')} FROM {d}) AS b0 ON b0.{dcol} = l._doc0",
-            f"ASOF LEFT JOIN {w} AS wl ON wl.{dcol} = l._doc0 AND l._hs >= wl.{ecol}",
-            f"LEFT JOIN {w} AS wl2 ON wl2.{dcol} = l._doc0 AND wl2.{ocol} = wl.{ocol} - {n}",
-            f"ASOF LEFT JOIN {w} AS wr ON wr.{dcol} = l._doc0 AND l._he <= wr.{scol}",
-            f"LEFT JOIN {w} AS wr2 ON wr2.{dcol} = l._doc0 AND wr2.{ocol} = wr.{ocol} + {n}",
-        ])
-        left_start = f"(CASE WHEN wl.{icol} IS NULL THEN l._hs ELSE coalesce(wl2.{scol}, b0.{ident('base')}) END)"
-        right_end = (f"(CASE WHEN wr.{icol} IS NULL THEN l._he "
-                     f"ELSE coalesce(wr2.{ecol}, b0.{ident('base')} + b0.{ident('length')}) END)")
-        ctes.append(f"x AS (SELECT l.*, {left_start} AS _ls, {right_end} AS _re FROM l {kw_joins})")
-    else:
-        ctes.append("x AS (SELECT l.*, l._hs AS _ls, l._he AS _re FROM l)")
-    # the context columns are for reading: a line break in them (CRLF, LF or CR) is one space,
-    # so a hit is one line in every format; `v.text` keeps the text as it is
-    cols += [one_line(sb, f"substr({text0}, CAST(l._ls - {base0} + 1 AS BIGINT), CAST(l._hs - l._ls AS BIGINT))"),
-             one_line(sb, f"substr({text0}, CAST(l._hs - {base0} + 1 AS BIGINT), CAST(l._he - l._hs AS BIGINT))"),
-             one_line(sb, f"substr({text0}, CAST(l._he - {base0} + 1 AS BIGINT), CAST(l._re - l._he AS BIGINT))")]
-    names += ["left", "match", "right"]
-    select_out = ", ".join(f"{c} AS c{k}" for k, c in enumerate(cols))
-    sql = (f"{with_(ctes, bool(sb.walk_ctes))} SELECT {select_out} FROM x AS l {' '.join(joins)} "
-           f"ORDER BY {', '.join('l.' + x for x in order.split(', '))}")
+    ranges = _has_range_relation(q.where) or any(_has_range_relation(x.cond) for x in q.withouts)
+    sql, names = listing_statement(sb, checked, ctes, last, items, limit_sql, context, cross_sentences,
+                                   (doc_lo, doc_hi) if windowed else None, ranges)
     return SqlQuery(sql, sb.params, names, "hits", limit_param=limit_param)

@@ -186,7 +186,7 @@ def _order_key(ck: "_Checker", item: ast.OrderItem, output: ast.Output | None,
         ck.fail(f"`order by` names an output column, and {written(key)} is not one", item.pos,
                 "columns: " + ", ".join(columns))
     if key in CONTEXT_SIDES:
-        ck.fail(f"`order by {key}` is not available yet: order by a shown value", item.pos)
+        return item
     shown = output.items if isinstance(output, ast.Show) else ()
     if isinstance(key, ast.Path) and len(key.parts) == 1 and key.text in {i.label for i in shown}:
         return replace(item, expr=next(i.expr for i in shown if i.label == key.text))

@@ -26,6 +26,7 @@ class Compilation:
     catalog: Catalog
     limit: int | None = None
     context: int = 5
+    cross_sentences: bool = False
     ast: Query | None = None
     checked: Checked | None = None
     plan: Plan | None = None
@@ -45,14 +46,16 @@ def plan(c: Compilation) -> Compilation:
 
 
 def to_sql(c: Compilation) -> Compilation:
-    return replace(c, sql=compiler.to_sql(c.checked, c.plan, limit=c.limit, context=c.context))
+    return replace(c, sql=compiler.to_sql(c.checked, c.plan, limit=c.limit, context=c.context,
+                                         cross_sentences=c.cross_sentences))
 
 
 PASSES: list[Callable[[Compilation], Compilation]] = [parse, check, plan, to_sql]
 
 
-def run_passes(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5) -> Compilation:
-    state = Compilation(text, catalog, limit, context)
+def run_passes(text: str, catalog: Catalog, *, limit: int | None = None, context: int = 5,
+               cross_sentences: bool = False) -> Compilation:
+    state = Compilation(text, catalog, limit, context, cross_sentences)
     for step in PASSES:
         state = step(state)
     return state

@@ -154,30 +154,37 @@ def test_limit(small, tmp_path):
     assert got == corpus.query("find w = token").rows()[:3]
 
 
-@pytest.mark.parametrize("context", [0, 2])
-def test_context_is_that_many_surface_words(small, tmp_path, context):
-    """Left and right context reach exactly `context` surface tokens (the token layer) of the text."""
+@pytest.mark.parametrize("context", [0, 2, 4])
+@pytest.mark.parametrize("cross", [False, True])
+def test_context_is_that_many_surface_words(small, tmp_path, context, cross):
+    """Left and right context reach exactly `context` surface tokens (the token layer) of the text,
+    of the hit's own sentence (the CoNLL-U sentence of each token) unless --cross-sentences."""
     path, corpus = small
     out = tmp_path / "hits.jsonl"
     done = strata("query", path, 'find t = word(upos = "NOUN")', "--context", str(context),
-                  "--format", "jsonl", "-o", str(out))
+                  *(["--cross-sentences"] if cross else []), "--format", "jsonl", "-o", str(out))
     assert done.returncode == 0, done.stderr
     con = corpus.connect()
     texts = dict(con.execute("SELECT name, text FROM documents").fetchall())
-    tokens: dict[str, list[tuple[int, int]]] = {}
-    for name, start, end in con.execute('SELECT d.name, w.start - d.base, w."end" - d.base FROM token w '
-                                        "JOIN documents d USING (doc) ORDER BY w.start").fetchall():
-        tokens.setdefault(name, []).append((start, end))
+    tokens: dict[str, list[tuple[int, int, str]]] = {}
+    for name, start, end, sent in con.execute(
+            'SELECT d.name, w.start - d.base, w."end" - d.base, s.sent_id FROM token w JOIN documents d USING (doc) '
+            "JOIN sentence s ON s.id = w.sent ORDER BY w.start").fetchall():
+        tokens.setdefault(name, []).append((start, end, sent))
     con.close()
     rows = [json.loads(line) for line in out.read_text(encoding="utf-8").splitlines()]
     assert rows
+    cut = 0
     for r in rows:
         text, start, end = texts[r["doc"]], r["t.char_start"], r["t.char_end"]
-        before = [w for w in tokens[r["doc"]] if w[1] <= start][-context:] if context else []
-        after = [w for w in tokens[r["doc"]] if w[0] >= end][:context]
+        near = [w for w in tokens[r["doc"]] if cross or w[2] == r["sentence"]]
+        before = [w for w in near if w[1] <= start][-context:] if context else []
+        after = [w for w in near if w[0] >= end][:context]
         assert r["left"] == one_line(text[before[0][0]:start] if before else "")
         assert r["right"] == one_line(text[end:after[-1][1]] if after else "")
-        assert r["match"] == one_line(text[start:end])
+        assert r["hit"] == one_line(text[start:end])
+        cut += len(before) < context or len(after) < context
+    assert cut > 0 or context == 0      # some hits sit near an edge, so the rule is exercised
 
 
 def one_line(text: str) -> str:

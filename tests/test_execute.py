@@ -31,7 +31,7 @@ def test_hit_table_columns_and_text(ferry):
     con, cat = ferry
     hits = run_query(con, cat, 'find w = token(form = "ferry") show w.sentence.speaker')
     assert hits.columns == ["doc", "sentence", "w.doc", "w.sentence", "w.text", "w.char_start", "w.char_end",
-                            "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "match", "right"]
+                            "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "hit", "right"]
     assert all(r["w.doc"] == r["doc"] and r["w.sentence"] == r["sentence"] for r in hits.rows())
     docs = {d["name"]: d["text"] for d in rows(con, "SELECT name, text FROM documents")}
     for r in hits.rows():
@@ -41,17 +41,24 @@ def test_hit_table_columns_and_text(ferry):
 
 
 @pytest.mark.parametrize("context", [0, 1, 2, 5, 50])
-def test_keyword_in_context_counts_words_and_joins_back_to_the_text(ferry, context):
+@pytest.mark.parametrize("cross", [False, True])
+def test_keyword_in_context_counts_words_and_joins_back_to_the_text(ferry, context, cross):
+    """N words each side (white-space words of this corpus's text), inside the hit's sentence
+    unless the context crosses sentences; sentences are the stored sentence spans."""
     con, cat = ferry
     docs = {d["name"]: d["text"] for d in rows(con, "SELECT name, text FROM documents")}
-    hits = run_query(con, cat, "find w = token", context=context)
+    sentences = rows(con, 'SELECT s.sent_id, s.start - d.base AS a, s."end" - d.base AS b '
+                          'FROM "sentence" s JOIN documents d USING (doc)')
+    span = {r["sent_id"]: (r["a"], r["b"]) for r in sentences}
+    hits = run_query(con, cat, "find w = token", context=context, cross_sentences=cross)
     for r in hits.rows():
         text = docs[r["doc"]]
         start, end = r["w.char_start"], r["w.char_end"]
         assert text[start - len(r["left"]):start] == r["left"]
         assert text[end:end + len(r["right"])] == r["right"]
-        words_before = len(text[:start].split())
-        words_after = len(text[end:].split())
+        lo, hi = (0, len(text)) if cross else span[r["sentence"]]
+        words_before = len(text[lo:start].split())
+        words_after = len(text[end:hi].split())
         assert len(r["left"].split()) == min(context, words_before)
         assert len(r["right"].split()) == min(context, words_after)
 
@@ -164,7 +171,7 @@ def test_compile_query_api(ferry):
     assert compiled.ast.bindings[0].var == "w"
     assert "$1" in compiled.sql and compiled.params[0] == "ferry"
     assert compiled.params[1] == 4             # context 5 tokens: 4 beyond the nearest one
-    # then, for each of left, match and right: line breaks (CRLF, CR, LF) become one space
+    # then, for each of left, hit and right: line breaks (CRLF, CR, LF) become one space
     assert compiled.params[2:] == ["\r\n|\r|\n", " ", "g"] * 3
     assert compiled.kind == "hits"
 
@@ -263,7 +270,7 @@ def test_gum_surface_forms_with_context(gum):
                 want += t["form"].lower() == "uh"
     hits = corpus.query('find w = token(form matches "(?i)^uh$")', context=3)
     assert len(hits) == want > 0
-    assert all(r["match"].lower() == "uh" for r in hits.rows())
+    assert all(r["hit"].lower() == "uh" for r in hits.rows())
 
 
 def test_limited_listing_is_the_head_of_the_full_listing(gum_corpora):

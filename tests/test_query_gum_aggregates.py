@@ -14,7 +14,6 @@ from collections import Counter, defaultdict
 import conllu
 import pytest
 
-from tests.conftest import gum_file
 
 
 @pytest.fixture(scope="module")
@@ -161,3 +160,22 @@ def test_a_listing_in_the_users_order_then_in_text_order(gum):
     hits = corpus.query('find t = word(upos = "ADJ") show t.form, length(t.form) '
                         'order by length(t.form) desc, t.form limit 60')
     assert [(r["length(t.form)"], r["t.form"], r["sentence"]) for r in hits.rows()] == [a[:3] for a in want]
+
+
+@pytest.mark.parametrize("side, descending", [("left", False), ("left", True), ("right", False), ("right", True)])
+def test_a_concordance_sorted_by_its_context_nearest_word_first(gum, side, descending):
+    """Checked against a sort done here on the listing itself: the context split at white space,
+    lower-cased, the word nearest the hit first; ties keep the order of the text (a stable sort)."""
+    corpus, _ = gum
+    query = 'find t = word(lemma = "time") show t.form'
+    listing = corpus.query(query).rows()
+    assert len(listing) > 30
+
+    def key(row):
+        words = row[side].lower().split()
+        return words[::-1] if side == "left" else words
+    want = sorted(listing, key=key, reverse=descending)
+    got = corpus.query(f"{query} order by {side}{' desc' if descending else ''}").rows()
+    assert [r["t.node"] for r in got] == [r["t.node"] for r in want]
+    first = corpus.query(f"{query} order by {side}{' desc' if descending else ''} limit 7").rows()
+    assert [r["t.node"] for r in first] == [r["t.node"] for r in want[:7]]

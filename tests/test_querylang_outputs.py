@@ -88,10 +88,11 @@ def test_order_by_an_aggregate_resolves_to_its_output_column():
 
 
 def test_order_by_in_a_listing_takes_shown_values_and_hit_columns():
-    c = run("find t = word show lower(t.form) as f order by f, t.start desc, t")
+    c = run("find t = word show lower(t.form) as f order by f, t.start desc, t, right")
     keys = [o.expr for o in c.query.order]
     assert keys[0] == ast.Call("lower", ast.Ref("t", "column", "form", "str"))
     assert keys[1] == ast.Ref("t", "time", "start", "time") and keys[2] == ast.Ref("t", "text", "text", "str")
+    assert keys[3] == "right"
 
 
 def test_having_may_test_a_group_key():

@@ -51,12 +51,12 @@ def test_across_cuts_only_the_context_and_marks_it(corpus):
     out = hits.render_table(160)
     lines = out.splitlines()
     header = lines[0].split()
-    assert header[:3] == ["left", "match", "right"] and "t.lemma" in header
+    assert header[:3] == ["left", "hit", "right"] and "t.lemma" in header
     starts = [m.start() for m in re.finditer(r"\S+", lines[1])]    # the rule under each column
     for line, row in zip(lines[2:22], hits.rows()):
         cells = [line[a:b].strip() for a, b in zip(starts, starts[1:] + [None])]
         named = dict(zip(header, cells))
-        assert named["match"] == row["match"].strip() and named["t.lemma"] == row["t.lemma"]
+        assert named["hit"] == row["hit"].strip() and named["t.lemma"] == row["t.lemma"]
         assert named["sentence"] == row["sentence"] and named["doc"] == row["doc"]
         if named["left"].startswith("…"):
             assert row["left"].endswith(named["left"][1:])
