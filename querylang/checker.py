@@ -53,6 +53,9 @@ class Checked:
     text: str = ""
 
 
+#: the layer of sentences, whose nodes know their length in words (``s.words``)
+SENTENCE_LAYER = "sentence"
+
 #: names a query uses for stored columns: CoNLL-U's own words for its ID and HEAD (``id`` is the
 #: CoNLL-U ID, see :func:`columns_of`), and ``node`` for strata's internal node number
 QUERY_NAMES = {"node": "id", "head": "head_num"}
@@ -145,6 +148,13 @@ class _Checker:
             return self._extra(var, "doc", "name", self.catalog.doc_attrs(), pos, written)
         if parts == ("sentence",) and "sent_id" in self.catalog.sentence_attrs():
             return self._extra(var, "sentence", "sent_id", self.catalog.sentence_attrs(), pos, written)
+        # lengths in words (syntactic words, punctuation included), unless the data name their own
+        if parts == ("sentence", "words") and "words" not in self.catalog.sentence_attrs():
+            return ast.Ref(var, "sentence_words", "words", "int", pos, written)
+        if parts == ("doc", "words") and "words" not in self.catalog.doc_attrs():
+            return ast.Ref(var, "doc_words", "words", "int", pos, written)
+        if parts == ("words",) and layer.name == SENTENCE_LAYER and "words" not in layer.attrs:
+            return ast.Ref(var, "own_words", "words", "int", pos, written)
         if len(parts) > 1 and parts[0] == "sentence":
             return self._extra(var, "sentence", ".".join(parts[1:]), self.catalog.sentence_attrs(), pos, written)
         if len(parts) > 1 and parts[0] == "doc":
@@ -161,7 +171,7 @@ class _Checker:
                 self.fail(f"layer {layer.name!r} has no time stamps, so {written!r} has no value", pos)
             return ast.Ref(var, kind, name, typ, pos, written)
         hint = suggest(name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
-                       | {"doc." + d for d in self.catalog.doc_attrs()})
+                       | {"doc." + d for d in self.catalog.doc_attrs()} | {"sentence.words", "doc.words"})
         elsewhere = sorted(n for n, info in self.catalog.layers().items() if name in info.attrs and info.rows)
         if elsewhere:   # e.g. upos asked of surface tokens: it lives on the syntactic words
             where = (f"layer {elsewhere[0]!r}" if len(elsewhere) == 1 else
@@ -176,7 +186,7 @@ class _Checker:
                written: str) -> ast.Ref:
         if name not in attrs:
             self.fail(f"{'sentences' if kind == 'sentence' else 'documents'} have no attribute {name!r}",
-                      pos, suggest(name, set(attrs)) or (f"{kind} attributes: " + ", ".join(sorted(attrs)) if attrs else None))
+                      pos, suggest(name, set(attrs) | {"words"}) or (f"{kind} attributes: " + ", ".join(sorted(attrs)) if attrs else None))
         return ast.Ref(var, kind, name, attrs[name].type, pos, written)
 
     def node(self, expr: ast.Expr, scope: dict[str, LayerInfo]) -> ast.Ref:

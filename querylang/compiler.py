@@ -165,6 +165,8 @@ class SqlBuilder:
         if e.kind == "doc":
             self.need(a, "doc")
             return f"{a}_d.{ident(e.name)}"
+        if e.kind in ("own_words", "sentence_words", "doc_words"):
+            return self.words_of(a, e.kind)
         if e.kind == "text":
             return self.text_of(a)
         if e.kind == "offset":
@@ -175,6 +177,19 @@ class SqlBuilder:
                 return f"({self.col(a, 't_end')} - {self.col(a, 't_start')})"
             return self.col(a, "t_start" if e.name == "start" else "t_end")
         raise AssertionError(e)
+
+    def words_of(self, a: str, kind: str) -> str:
+        """A length in words: a sentence spans the words ``word_first..word_last`` (consecutive
+        ordinals of syntactic words, punctuation included, empty nodes not); a document holds
+        the words of its sentences."""
+        first, last = ident("word_first"), ident("word_last")
+        if kind == "own_words":
+            return f"({a}.{last} - {a}.{first} + 1)"
+        if kind == "sentence_words":
+            self.need(a, "sentence")
+            return f"({a}_s.{last} - {a}_s.{first} + 1)"
+        return (f"(SELECT sum({last} - {first} + 1) FROM {ident(SENTENCE_VIEW)} AS ws "
+                f"WHERE ws.{ident('doc')} = {self.col(a, 'doc')})")
 
     def shown(self, e: ast.Expr, scope: Scope) -> str:
         """A value for the hit table: like :meth:`expr`, but a time in seconds.

@@ -179,3 +179,21 @@ def test_a_concordance_sorted_by_its_context_nearest_word_first(gum, side, desce
     assert [r["t.node"] for r in got] == [r["t.node"] for r in want]
     first = corpus.query(f"{query} order by {side}{' desc' if descending else ''} limit 7").rows()
     assert [r["t.node"] for r in first] == [r["t.node"] for r in want[:7]]
+
+
+def test_mean_sentence_length_per_genre_and_document_lengths(gum):
+    """Sentences and documents carry their length in syntactic words (integer IDs)."""
+    corpus, sentences = gum
+    lengths: dict[str, list[int]] = defaultdict(list)
+    doc_words = {}
+    for doc, genre, ss in documents(sentences):
+        lengths[genre] += [len(words(s)) for s in ss]
+        doc_words[doc] = sum(len(words(s)) for s in ss)
+    hits = corpus.query("find s = sentence mean(s.words), max(s.words) per s.doc.genre")
+    got = {r["s.doc.genre"]: (r["mean(s.words)"], r["max(s.words)"], r["count"]) for r in hits.rows()}
+    assert got == {g: (pytest.approx(statistics.mean(v)), max(v), len(v)) for g, v in lengths.items()}
+    # every sentence has one root word: per document, the longest sentence and the whole length
+    docs = corpus.query('find t = word(deprel = "root") max(t.sentence.words), max(t.doc.words) per t.doc').rows()
+    longest = {d: max(len(words(s)) for s in ss) for d, _, ss in documents(sentences)}
+    assert {r["t.doc"]: (r["max(t.sentence.words)"], r["max(t.doc.words)"]) for r in docs} == {
+        d: (longest[d], doc_words[d]) for d in doc_words}
