@@ -344,6 +344,21 @@ def test_within_is_refused_with_the_caret_under_it(small):
     assert "by at most 3 words" in done.stderr and "give or take 20ms" in done.stderr
 
 
+def test_a_sample_larger_than_the_result_is_noted_on_stderr(small):
+    path, corpus = small
+    every = len(corpus.query('find t = word(upos = "PROPN")'))
+    done = strata("query", path, f'find t = word(upos = "PROPN") sample {every + 10} seed 4', "--format", "csv")
+    assert done.returncode == 0, done.stderr
+    assert len(done.stdout.strip().splitlines()) == every + 1          # the header and every hit
+    assert f"note: sample {every + 10} asked for, but the query has {every} hits" in done.stderr
+
+
+def test_by_after_an_aggregate_is_a_user_error_naming_per(small):
+    done = strata("query", small[0], "find t = word count by t.lemma")
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert "write `per t.lemma`" in done.stderr
+
+
 def test_explain_of_a_mistake_is_a_user_error(small):
     done = strata("explain", small[0], "find w = wrod")
     assert done.returncode == 2 and "did you mean" in done.stderr and "Traceback" not in done.stderr
