@@ -14,7 +14,7 @@ from lark import Lark, Transformer, v_args
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken, VisitError
 
 from querylang.errors import StrataError
-from querylang import ast
+from querylang import ast, syntax_help
 
 GRAMMAR_FILE = FilePath(__file__).with_name("grammar.lark")
 
@@ -377,21 +377,14 @@ def parse(text: str) -> ast.Query:
         raise StrataError("empty query: write e.g. find w = word(form = \"ferry\")", query=text or " ", line=1, column=1)
     try:
         tree = _lark().parse(text)
-    except UnexpectedToken as err:
-        found = "the end of the query" if err.token.type == "$END" else repr(str(err.token))
-        raise StrataError(
-            f"unexpected {found}; expected one of: {_expected(err.expected)}",
-            query=text,
-            line=_last_line(text) if err.token.type == "$END" or not err.line or err.line < 1 else err.line,
-            column=_last_column(text) if err.token.type == "$END" or not err.column or err.column < 1 else err.column,
-            hint=_hint(text, err.pos_in_stream if err.token.type != "$END" else None),
-        ) from None
-    except UnexpectedCharacters as err:
-        allowed = _expected(err.allowed) if err.allowed else "something else"
-        raise StrataError(
-            f"unexpected character {text[err.pos_in_stream]!r}; expected one of: {allowed}",
-            query=text, line=err.line, column=err.column, hint=_hint(text, err.pos_in_stream),
-        ) from None
+    except (UnexpectedToken, UnexpectedCharacters) as err:
+        expected = set(getattr(err, "expected", None) or getattr(err, "allowed", None) or ())
+        offset = err.pos_in_stream if not (isinstance(err, UnexpectedToken) and err.token.type == "$END") else -1
+        helped = syntax_help.explain(text, offset if offset is not None else -1, expected)
+        if helped is not None:
+            line, column = _place(text, helped.offset)
+            raise StrataError(helped.message, query=text, line=line, column=column, hint=helped.hint) from None
+        _raise_plain(text, err)
     except UnexpectedEOF as err:
         raise StrataError(
             f"the query ends too early; expected one of: {_expected(set(err.expected))}",
@@ -407,6 +400,31 @@ def parse(text: str) -> ast.Query:
             e = err.orig_exc
             raise StrataError(e.message, query=text, line=e.pos.line, column=e.pos.column, hint=e.hint) from None
         raise StrataError(f"cannot read the query: {err.orig_exc}", query=text, line=1, column=1) from None
+
+
+def _place(text: str, offset: int) -> tuple[int, int]:
+    """1-based line and column of a 0-based offset."""
+    line = text.count("\n", 0, offset) + 1
+    return line, offset - (text.rfind("\n", 0, offset) + 1) + 1
+
+
+def _raise_plain(text: str, err: UnexpectedInput) -> None:
+    """The parser's own account: what came, and what could have come instead."""
+    if isinstance(err, UnexpectedToken):
+        found = "the end of the query" if err.token.type == "$END" else repr(str(err.token))
+        raise StrataError(
+            f"unexpected {found}; expected one of: {_expected(err.expected)}",
+            query=text,
+            line=_last_line(text) if err.token.type == "$END" or not err.line or err.line < 1 else err.line,
+            column=_last_column(text) if err.token.type == "$END" or not err.column or err.column < 1 else err.column,
+            hint=_hint(text, err.pos_in_stream if err.token.type != "$END" else None),
+        ) from None
+    if isinstance(err, UnexpectedCharacters):
+        allowed = _expected(err.allowed) if err.allowed else "something else"
+        raise StrataError(
+            f"unexpected character {text[err.pos_in_stream]!r}; expected one of: {allowed}",
+            query=text, line=err.line, column=err.column, hint=_hint(text, err.pos_in_stream),
+        ) from None
 
 
 # Habits from other languages, and what to write here instead.
