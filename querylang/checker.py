@@ -53,6 +53,8 @@ class Checked:
     text: str = ""
 
 
+ORDERING = {"<", "<=", ">", ">="}
+
 #: the layer of sentences, whose nodes know their length in words (``s.words``)
 SENTENCE_LAYER = "sentence"
 
@@ -301,16 +303,22 @@ class _Checker:
                                   b.pos, "word, token and char units go with distance(a, b)")
                     continue
                 tb = _type(b)
+                # the caret goes under the comparison; in a list, under the value
+                at = b.pos if op == "in" else pos
                 if ta == "str" and tb in NUMERIC | {"literal_number"}:
-                    self.fail(f"{_written(a)} is text but {b.value!r} is a number", b.pos,
-                              f'quote it: "{b.value}"')
+                    if op in ORDERING:   # quoting would make it a comparison of text, by code point
+                        self.fail(f"{_written(a)} is text and {b.value!r} a number: text has no numeric order",
+                                  at, "compare a number attribute, or the length of the text: length(x) > 3")
+                    self.fail(f"{_written(a)} is text but {b.value!r} is a number", at,
+                              f'to compare the text, write "{b.value}"')
                 if ta in NUMERIC and tb == "str":
-                    self.fail(f"{_written(a)} is a number but {b.value!r} is text", b.pos,
+                    self.fail(f"{_written(a)} is a number but {b.value!r} is text", at,
                               "write the number without quotes")
                 if ta == "bool" and tb != "bool":
-                    self.fail(f"{_written(a)} is true or false", b.pos, "compare with true or false")
+                    self.fail(f"{_written(a)} is true or false", at, "compare with true or false")
                 if ta != "bool" and tb == "bool" and ta != "literal":
-                    self.fail(f"{_written(a)} is not true/false", b.pos)
+                    self.fail(f"{_written(a)} is {_type_name(a)}, not true or false", at,
+                              "compare with a value of its kind")
         if not isinstance(left, ast.Literal) and not isinstance(right, ast.Literal):
             kinds = {_type(left), _type(right)}
             if "str" in kinds and kinds & NUMERIC:
@@ -318,7 +326,7 @@ class _Checker:
                           "a number", pos)
             if ("time" in kinds and "length" in kinds):
                 self.fail("a time is compared with a distance", pos)
-        if op in ("<", "<=", ">", ">=") and "bool" in (_type(left), _type(right)):
+        if op in ORDERING and "bool" in (_type(left), _type(right)):
             self.fail("true/false values have no order", pos)
 
     def coref_layer(self, layer: LayerInfo, pos: ast.Pos, need_first: bool = False) -> None:

@@ -48,6 +48,8 @@ TERMINAL_NAMES = {
     "VALUE_FUNCTION": "lower/fold/length",
     "COUNT": '"count"',
     "RATE": '"rate"',
+    "TRUE": "true",
+    "FALSE": "false",
     "BY": '"by"',
     "HAVING": '"having"',
     "DIRECTION": "asc or desc",
@@ -332,11 +334,11 @@ class ToAst(Transformer):
     def quantity(self, number, unit=None):
         return ast.Literal(_number(str(number)), _unit(str(unit)) if unit is not None else None, _pos(number))
 
-    def true(self):
-        return ast.Literal(True)
+    def true(self, token):
+        return ast.Literal(True, None, _pos(token))
 
-    def false(self):
-        return ast.Literal(False)
+    def false(self, token):
+        return ast.Literal(False, None, _pos(token))
 
 
 def _expr_pos(expr: object) -> ast.Pos:

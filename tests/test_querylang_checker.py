@@ -82,6 +82,25 @@ def test_type_mistakes_are_explained(text, tokens):
     assert tokens in str(error(text))
 
 
+@pytest.mark.parametrize("text, op, message, hint", [
+    ("find t = word(form > 3)", ">", "text has no numeric order", "length(x)"),
+    ("find t = word where t.form <= 3", "<=", "text has no numeric order", "length(x)"),
+    ("find t = word where t.form = 3", "=", "is text but 3 is a number", 'write "3"'),
+    ("find t = word where t.form != 3", "!=", "is text but 3 is a number", 'write "3"'),
+    ("find t = word(form = true)", "=", "not true or false", None),
+    ("find t = word where t.ord = \"3\"", "=", "is a number but '3' is text", "without quotes"),
+    ("find m = mention where m.first_mention = 1", "=", "true or false", None),
+])
+def test_a_comparison_of_unlike_kinds_is_refused_at_the_comparison(text, op, message, hint):
+    err = error(text)
+    assert message in err.message, err.message
+    assert (err.line, err.column) == (1, text.rindex(f" {op} ") + 2)
+    if hint:
+        assert hint in err.hint
+    if op in ("<", "<=", ">", ">="):      # quoting the number would compare text by code point: never offered
+        assert '"3"' not in str(err)
+
+
 def test_relations_checked_against_layers():
     assert "same tree" in error("find a = word, b = phrase where a child of b allow cross product").message
     assert "needs a tree" in error("find a = mention, b = mention where a under b").message
