@@ -236,8 +236,10 @@ class Store:
                 attrs.setdefault(layer, {})[attr] = AttrInfo(attr, typ, nd, nn)
             rows = dict(self._rows("SELECT layer, sum(rows) FROM parts GROUP BY layer"))
             out = {}
-            for name, kind, props_json in self._rows("SELECT name, kind, props FROM layers ORDER BY name"):
-                props = json.loads(props_json)
+            declared = {name: (kind, json.loads(p)) for name, kind, p in
+                        self._rows("SELECT name, kind, props FROM layers ORDER BY name")}
+            for name, (kind, props) in declared.items():
+                props = {**props, "edge_sets": _edge_sets(name, props, declared)}
                 out[name] = LayerInfo(
                     name=name, kind=kind, attrs=attrs.get(name, {}), rows=int(rows.get(name, 0) or 0),
                     tree=bool(props.get("tree")), time=bool(props.get("time")),
@@ -717,6 +719,19 @@ class Batch:
 
 
 # -- helpers ----------------------------------------------------------------------------
+def _edge_sets(name: str, props: dict, declared: dict[str, tuple[str, dict]]) -> list[str]:
+    """The edge sets a layer's nodes take part in: as declared, and for the empty nodes of a
+    CoNLL-U import also its enhanced graph (DEPS may name an empty node: "8.1:nsubj"), which
+    corpora imported before that was declared lack."""
+    sets = list(props.get("edge_sets", ()))
+    prefix, _, last = name.rpartition(".")
+    enhanced = f"{prefix}.enhanced" if prefix else "enhanced"
+    if (last == "empty" and props.get("format") == "conllu" and enhanced not in sets
+            and declared.get(enhanced, ("", {}))[0] == "edges"):
+        sets.append(enhanced)
+    return sets
+
+
 def _insert(con: duckdb.DuckDBPyConnection, statement: str, columns: tuple[str, ...], rows: list[tuple]) -> None:
     """``statement`` (an INSERT up to its table) with ``rows`` as one Arrow table, by column name."""
     if not rows:

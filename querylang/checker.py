@@ -380,20 +380,26 @@ class _Checker:
         return normalised(replace(rel, left=left, right=right, via=via, in_time=is_time))
 
     def edge_set(self, rel: ast.Relation, la: LayerInfo, lb: LayerInfo) -> str:
+        """The edge set a dependency relation or walk follows; both layers must be its nodes."""
         edges = {n: l for n, l in self.all_layers.items() if l.kind == "edges"}
         if rel.via is not None:
             if rel.via not in edges:
                 self.fail(f"unknown edge set {rel.via!r}", rel.pos,
                           suggest(rel.via, set(edges)) or ("edge sets: " + ", ".join(sorted(edges)) if edges else None))
-            return rel.via
-        offered = [e for e in la.edge_sets if e in lb.edge_sets] or list(la.edge_sets)
-        if "dep" in offered or ("dep" in edges and not offered):
-            return "dep"
-        if offered:
-            return offered[0]
-        self.fail(f"no dependency edges connect layer {la.name!r}", rel.pos,
-                  "edge sets: " + ", ".join(sorted(edges)) if edges else "this corpus has no edge sets")
-        raise AssertionError
+            chosen = rel.via
+        else:
+            offered = [e for e in la.edge_sets if e in lb.edge_sets] or list(la.edge_sets) or list(lb.edge_sets)
+            if not offered:
+                self.fail(f"`{rel.name}` follows dependency edges, and neither {la.name!r} nor {lb.name!r} has any",
+                          rel.pos, "edge sets: " + ", ".join(sorted(edges)) if edges else "this corpus has no edge sets")
+            chosen = "dep" if "dep" in offered else offered[0]
+        for layer in (la, lb):
+            if chosen not in layer.edge_sets:
+                joined = sorted(n for n, l in self.all_layers.items() if chosen in l.edge_sets)
+                self.fail(f"`{rel.name}` follows the edges of {chosen!r}, which join nodes of "
+                          f"{', '.join(repr(j) for j in joined) or 'no layer'}; layer {layer.name!r} has none",
+                          rel.pos, "relate it to those nodes with a text or time relation, e.g. `inside`")
+        return chosen
 
     # ---- the whole query -----------------------------------------------------------------
     def check(self, query: ast.Query) -> Checked:

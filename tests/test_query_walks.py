@@ -179,9 +179,20 @@ def test_an_unknown_edge_set_suggests_the_closest():
 
 
 def test_a_walk_may_join_layers_without_tree_columns():
+    """A layer whose nodes the edge set joins may walk it without tree columns of its own."""
+    cat = catalog()
+    layers = dict(cat.layer_map)
+    layers["chunk"] = LayerInfo("chunk", "span", {"kind": AttrInfo("kind")}, rows=5, word_layer="word",
+                                edge_sets=("enhanced",))
     text = "find a = chunk, b = word where b above a via enhanced"
-    checked = check(parse(text), catalog(), text)
+    checked = check(parse(text), StaticCatalog(layers), text)
     assert checked.query.where.via == "enhanced"
+
+
+def test_a_walk_over_edges_that_never_touch_a_layer_is_refused():
+    text = "find a = chunk, b = word where b above a via enhanced"
+    err = error(text)
+    assert "layer 'chunk' has none" in err.message and err.column == text.index("above") + 1
 
 
 def test_a_label_needs_an_edge_set_and_via_needs_a_relation_that_walks():

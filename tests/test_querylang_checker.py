@@ -109,6 +109,10 @@ def test_relations_checked_against_layers():
     assert "at depth" in error("find a = word, b = word where a child of b at depth 2").message
     assert "in time" in error("find a = word, b = word where a precedes b in time").message
     assert "unknown edge set" in error("find a = word, b = word where a depends on b via depp").message
+    # a dependency relation needs both layers among the edge set's nodes, as `child of` needs a tree
+    err = error("find a = word, b = mention where a depends on b")
+    assert "layer 'mention' has none" in err.message and err.column == len("find a = word, b = mention where a ") + 1
+    assert "has none" in error("find a = mention, b = word where a governs b").message
 
 
 def test_cross_product_refused_unless_allowed():

@@ -1,9 +1,13 @@
 """Compiler: literals travel only as bound parameters, identifiers only from the catalog."""
 from __future__ import annotations
 
+import dataclasses
+
 import re
 
 import pytest
+
+from querylang.catalog import StaticCatalog
 
 from engine.execute import compile_query, run_query
 from querylang.compiler import ident
@@ -102,13 +106,17 @@ def test_join_order_starts_from_the_most_selective_variable(corpus):
 
 def test_dependency_through_edge_table_or_tree_columns(corpus):
     con, cat = corpus
-    # token layer: no tree of its own, so the edge set is joined (deduplicated) or tested with EXISTS
-    top = compile_query("find a = token, b = token where a depends on b", cat).sql
-    nested = compile_query("find a = token, b = token where a precedes b and not a depends on b", cat).sql
+    # a layer the edge set joins but with no tree of its own (here the tokens, declared so for
+    # this check of the SQL's shape): the edge set is joined (deduplicated) or tested with EXISTS
+    layers = dict(cat.layer_map)
+    layers["token"] = dataclasses.replace(layers["token"], edge_sets=("dep",))
+    joined = StaticCatalog(layers, cat.sentence, cat.doc)
+    top = compile_query("find a = token, b = token where a depends on b", joined).sql
+    nested = compile_query("find a = token, b = token where a precedes b and not a depends on b", joined).sql
     assert "SELECT DISTINCT" in top and "EXISTS" not in top
     assert "EXISTS" in nested
     # an "or" between relations becomes one join per branch
-    either = compile_query("find a = token, b = token where a depends on b or b depends on a", cat).sql
+    either = compile_query("find a = token, b = token where a depends on b or b depends on a", joined).sql
     assert " UNION " in either and "EXISTS" not in either
     # word layer carrying the basic tree: parent = head, label = deprel (no edge table needed)
     tree = compile_query('find a = word, b = word where a depends on b as "nsubj"', cat)

@@ -192,7 +192,8 @@ class ConlluImporter:
         self.batch.declare_layer(n["word"], "sequence", {**common, **kv, "tree": True,
                                                        "edge_sets": [n["dep"], n["enhanced"]]})
         self.batch.declare_layer(n["token"], "sequence", {**common, "key_value": ["misc"]})
-        self.batch.declare_layer(n["empty"], "sequence", {**common, **kv})
+        # the enhanced graph also joins empty nodes (CoNLL-U DEPS: "8.1:nsubj")
+        self.batch.declare_layer(n["empty"], "sequence", {**common, **kv, "edge_sets": [n["enhanced"]]})
         self.batch.declare_layer(n["sentence"], "span", {**common, "separate": True})
         self.batch.declare_layer(n["mention"], "span", {**common, "coreference": True})
         self.batch.declare_layer(n["dep"], "edges", {"nodes": n["word"]})
