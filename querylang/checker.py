@@ -16,6 +16,7 @@ from querylang.errors import StrataError
 from querylang import ast, outputs
 from querylang.bounds import ALLEN_RELATIONS, LENGTH_UNITS, TIME_UNITS, check_modifiers, normalised
 from querylang.catalog import AttrInfo, Catalog, LayerInfo
+from querylang.line_order import is_empty_layer, is_word_layer
 from querylang.types import NUMERIC, is_time, type_name as _type_name, type_of as _type, written as _written
 
 TEXT_RELATIONS = {"inside", "contains", "overlaps", "same span as", "precedes", "follows",
@@ -374,7 +375,13 @@ class _Checker:
             self.coref_layer(la, rel.pos)
             self.coref_layer(lb, rel.pos)
         elif name in ("directly precedes", "directly follows"):
-            if _adjacency_layer(la, lb) is None:
+            empties = [l for l in (la, lb) if is_empty_layer(l)]
+            if empties:
+                other = next((l for l in (la, lb) if not (is_empty_layer(l) or is_word_layer(l))), None)
+                if other is not None or (len(empties) == 2 and la.name != lb.name):
+                    self.fail(f"`{name}` orders empty nodes among the lines of their CoNLL-U sentence, so it "
+                              f"relates them to words ({empties[0].word_layer!r}) and to each other only", rel.pos)
+            elif _adjacency_layer(la, lb) is None:
                 self.fail(f"cannot tell adjacency between {la.name!r} and {lb.name!r}: they count no common "
                           "token layer", rel.pos)
         return normalised(replace(rel, left=left, right=right, via=via, in_time=is_time))

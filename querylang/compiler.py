@@ -31,6 +31,8 @@ Definitions the SQL implements (the user-facing semantics):
 * ``directly precedes``: in one document, for two nodes of one token layer
   ``b.ord = a.ord + 1``; otherwise ``a`` precedes ``b`` and no token of the shared token
   layer lies between them (``b.first = a.last + 1`` in that layer's ordinals).
+* With a CoNLL-U empty node on either side, ``directly precedes`` follows the file's line
+  order (querylang/line_order.py): word k, then k.1, k.2, ..., then word k+1.
 * ``a under b`` (tree columns): ``b.pre < a.pre and a.post < b.post``; ``at depth lo..hi``
   bounds ``a.depth - b.depth``.  ``a under b via E``: b is reached from a by following
   edges of the set E from ``src`` to ``dst`` (dependent -> head) one or more times, so b is
@@ -56,6 +58,7 @@ from decimal import ROUND_HALF_EVEN, Decimal
 from querylang import ast, grouping
 from querylang.catalog import LayerInfo
 from querylang.checker import LENGTH_UNITS, TIME_UNITS, Checked, _adjacency_layer, is_time
+from querylang.line_order import is_empty_layer, next_line
 from querylang.listing import listing_statement, place_columns
 from querylang.outputs import CONTEXT_SIDES, words_layer
 from querylang.sqltext import DOC_VIEW, DOCUMENTS_VIEW, SENTENCE_VIEW, ident, to_seconds, with_
@@ -291,6 +294,8 @@ class SqlBuilder:
                 else:
                     out += f" AND {c(b, first_b)} {op} {c(a, last_a)} + {self.param(lit.value)} + 1"
             return out + ")"
+        if name == "directly precedes" and (is_empty_layer(la) or is_empty_layer(lb)):
+            return next_line(a, b, la, lb, self.param("."))
         if name == "directly precedes":
             ref = _adjacency_layer(la, lb)
             assert ref is not None
