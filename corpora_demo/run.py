@@ -43,7 +43,7 @@ SHOWCASE: list[tuple[str, str]] = [
      'find f = disfluency(label = "filled_pause"), c = tree(reading = 0)\n'
      "where f inside c and not c same span as f\n"
      "without d = tree where d under c and f inside d and not d same span as f\n"
-     "count per f.sentence.speaker, c.cat"),
+     "count per f.sentence.speaker, c.category"),
     ("Restarts and their repairs: a reparandum and the repair of the same group, and the "
      "time from the end of one to the start of the other (from the spoken words' timings).",
      'find r = disfluency(label = "reparandum"), p = disfluency(label = "repair")\n'
@@ -51,7 +51,8 @@ SHOWCASE: list[tuple[str, str]] = [
      "show r.group, gap(r, p)"),
     ("Ambiguous sentences: the same prepositional phrase attached to the verb phrase in one "
      "tree reading and to the noun phrase in the other, with both reading numbers.",
-     'find pp_v = tree(cat = "PP"), vp = tree(cat = "VP"), pp_n = tree(cat = "PP"), np = tree(cat = "NP")\n'
+     'find pp_v = tree(category = "PP"), vp = tree(category = "VP"),\n'
+     '     pp_n = tree(category = "PP"), np = tree(category = "NP")\n'
      "where pp_v child of vp and pp_n child of np and pp_v same span as pp_n\n"
      "count per pp_v.sentence.sent_id, pp_v.text, pp_v.reading, pp_n.reading"),
     ("Third-person pronouns (words) and the previous mention of their entity (coreference), "

@@ -62,6 +62,11 @@ SENTENCE_LAYER = "sentence"
 #: names a query uses for stored columns: CoNLL-U's own words for its ID and HEAD (``id`` is the
 #: CoNLL-U ID, see :func:`columns_of`), and ``node`` for strata's internal node number
 QUERY_NAMES = {"node": "id", "head": "head_num"}
+#: the parts of a constituent's label, spelled out (stored as ``cat`` and ``func``): ``NP-SBJ`` has
+#: category ``NP`` and function ``SBJ``
+TREE_NAMES = {"category": "cat", "function": "func"}
+#: short names of earlier versions, answered with "did you mean"
+OLD_NAMES = {stored: name for name, stored in TREE_NAMES.items()}
 
 
 def columns_of(layer: LayerInfo) -> dict[str, str]:
@@ -84,6 +89,9 @@ def columns_of(layer: LayerInfo) -> dict[str, str]:
         cols["reading"] = "int"
     for name, info in layer.attrs.items():
         cols[name] = info.type
+    for name, stored in TREE_NAMES.items():
+        if stored in cols and layer.tree:
+            cols[name] = cols.pop(stored)
     return cols
 
 
@@ -167,7 +175,8 @@ class _Checker:
         if name == "id" and name in cols:
             return ast.Ref(var, "conllu_id", "cid", cols[name], pos, written)
         if name in cols:
-            return ast.Ref(var, "column", QUERY_NAMES.get(name, name), cols[name], pos, written)
+            stored = TREE_NAMES.get(name, name) if layer.tree and name not in layer.attrs else name
+            return ast.Ref(var, "column", QUERY_NAMES.get(stored, stored), cols[name], pos, written)
         if name in DERIVED:
             kind, typ = DERIVED[name]
             if kind == "time" and not layer.time:
@@ -182,6 +191,8 @@ class _Checker:
             hint = f"{name!r} is an attribute of {where}" + ("" if not hint else f"; {hint}")
         if name == "id":
             hint = f"layer {layer.name!r} has no CoNLL-U ID; strata's own node number is {var}.node"
+        if name in OLD_NAMES and OLD_NAMES[name] in cols:
+            hint = f"did you mean: {OLD_NAMES[name]}? (label is the whole label, e.g. NP-SBJ)"
         self.fail(f"layer {layer.name!r} has no attribute {name!r}", pos, hint)
         raise AssertionError
 

@@ -268,7 +268,7 @@ def test_filled_pauses_by_speaker_and_smallest_constituent(results, demo):
                 best = (pos, label)
         want[(s.speaker, category(best[1]))] += 1
     hits = showcase(results, 'label = "filled_pause"), c = tree')
-    got = {(r["f.sentence.speaker"], r["c.cat"]): r["count"] for r in hits.rows()}
+    got = {(r["f.sentence.speaker"], r["c.category"]): r["count"] for r in hits.rows()}
     assert got == dict(want)
     # every filled pause is counted once: per speaker, the totals are the span table's rows
     by_speaker = Counter()

@@ -269,7 +269,7 @@ def test_traces_readings_and_escapes(tmp_path):
     assert text[whnp[1] - base:whnp[2] - base] == "Which boat (the late one)" and whnp[3:] == ("WHNP", "1")
     trace = con.execute("SELECT form, empty, trace_of, start, \"end\" FROM tree WHERE empty").fetchone()
     assert trace[:3] == ("*T*-1", True, whnp[0]) and trace[3] == trace[4] == base + text.index("?")
-    lrb = con.execute("SELECT form, start FROM tree WHERE pos = '-LRB-'").fetchone()
+    lrb = con.execute("SELECT form, start FROM tree WHERE pos = '-LRB-' AND is_leaf").fetchone()
     assert lrb == ("(", base + text.index("("))
     sbj = con.execute("SELECT count(*) FROM tree WHERE cat = 'NP' AND func = 'SBJ'").fetchone()[0]
     assert sbj == 2

@@ -455,8 +455,12 @@ class _FileTrees:
         parts = [split_label(v) for v in labels.dictionary.to_pylist()]
         cols = [pa.DictionaryArray.from_arrays(labels.indices, pa.array([p[k] for p in parts], pa.string())
                                                ).cast(pa.string()) for k in range(4)]
+        # a part of speech is the preterminal's label: on the leaf, and on the preterminal itself,
+        # so `tree(pos = "NNP") child of tree(category = "NP")` reaches the node under the NP
+        preterminal = np.zeros(len(forest.is_leaf), dtype=bool)
+        preterminal[forest.parent[forest.is_leaf & (forest.parent >= 0)]] = True
         pos = pc.if_else(pa.array(forest.is_leaf), pc.take(forest.label, pa.array(np.maximum(forest.parent, 0))),
-                         pa.nulls(len(forest.is_leaf), pa.string()))
+                         pc.if_else(pa.array(preterminal), forest.label, pa.nulls(len(forest.is_leaf), pa.string())))
         unescaped = _unescape(forest.form)
         written = pc.if_else(pa.array(empty), forest.form, unescaped)
         is_word = forest.is_leaf & ~empty
