@@ -177,13 +177,20 @@ class _Checker:
         if name in cols:
             stored = TREE_NAMES.get(name, name) if layer.tree and name not in layer.attrs else name
             return ast.Ref(var, "column", QUERY_NAMES.get(stored, stored), cols[name], pos, written)
+        if name == "chain_length" and "chain" in layer.attrs and name not in layer.attrs:
+            return ast.Ref(var, "chain_length", name, "int", pos, written)     # mentions in the chain
         if name in DERIVED:
             kind, typ = DERIVED[name]
             if kind == "time" and not layer.time:
                 self.fail(f"layer {layer.name!r} has no time stamps, so {written!r} has no value", pos)
             return ast.Ref(var, kind, name, typ, pos, written)
-        hint = suggest(name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
-                       | {"doc." + d for d in self.catalog.doc_attrs()} | {"sentence.words", "doc.words"})
+        # the layer's own attributes first; the values every node has only when none is close
+        own = set(cols) - set(ANCHOR_COLUMNS) - set(TREE_COLUMNS) - {"node", "ord"}
+        if "chain" in layer.attrs:
+            own.add("chain_length")
+        hint = suggest(name, own) or suggest(
+            name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
+            | {"doc." + d for d in self.catalog.doc_attrs()} | {"sentence.words", "doc.words"})
         elsewhere = sorted(n for n, info in self.catalog.layers().items() if name in info.attrs and info.rows)
         if elsewhere:   # e.g. upos asked of surface tokens: it lives on the syntactic words
             where = (f"layer {elsewhere[0]!r}" if len(elsewhere) == 1 else

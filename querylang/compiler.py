@@ -170,6 +170,10 @@ class SqlBuilder:
             return f"{a}_d.{ident(e.name)}"
         if e.kind in ("own_words", "sentence_words", "doc_words"):
             return self.words_of(a, e.kind)
+        if e.kind == "chain_length":    # the mentions of the node's chain (none without a chain)
+            layer = scope.layers[e.var]
+            return (f"(CASE WHEN {self.col(a, 'chain')} IS NOT NULL THEN (SELECT count(*) FROM "
+                    f"{ident(layer.name)} AS cl WHERE cl.{ident('chain')} = {self.col(a, 'chain')}) END)")
         if e.kind == "text":
             return self.text_of(a)
         if e.kind == "offset":

@@ -218,6 +218,15 @@ def test_mention_pairs_in_one_chain(split):
     assert max(sizes) > 1
 
 
+def test_chain_length_is_the_number_of_mentions_in_the_chain(split):
+    corpus, ref = split
+    want = Counter()                     # chain length -> mentions in chains of that length
+    for n in _chain_sizes(ref):
+        want[n] += n
+    got = {r["m.chain_length"]: r["count"] for r in corpus.query("find m = mention count per m.chain_length").rows()}
+    assert got == dict(want)
+
+
 def test_previous_mention_is_the_one_just_before_in_the_text(split):
     """Each (earlier, later) pair from the query is adjacent in text order within its chain."""
     corpus, ref = split

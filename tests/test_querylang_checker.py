@@ -101,6 +101,13 @@ def test_a_comparison_of_unlike_kinds_is_refused_at_the_comparison(text, op, mes
         assert '"3"' not in str(err)
 
 
+def test_an_unknown_attribute_is_suggested_from_the_layers_own():
+    err = error("find m = mention where m.chain_lenght > 2")
+    assert err.hint == "did you mean: chain_length?"
+    err = error('find m = mention where m.typ = "person"')
+    assert err.hint.startswith("did you mean: type")
+
+
 def test_relations_checked_against_layers():
     assert "same tree" in error("find a = word, b = phrase where a child of b allow cross product").message
     assert "needs a tree" in error("find a = mention, b = mention where a under b").message
