@@ -20,6 +20,7 @@ import pyarrow as pa
 
 from engine.errors import StrataError
 from engine.results import Hits
+from engine.value_notes import value_notes
 from querylang.ast import Query, Show
 from querylang.catalog import Catalog
 from querylang.compiler import effective_limit
@@ -131,7 +132,8 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
     table = table.rename_columns(compiled.columns)
     output = compiled.ast.output
     shown = tuple(i.label for i in output.items) if isinstance(output, Show) else ()
-    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown, _notes(compiled, table, limit))
+    notes = _notes(compiled, table, limit) + value_notes(con, catalog, compiled.state.checked)
+    return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown, notes)
 
 
 def _notes(compiled: CompiledQuery, table: pa.Table, limit: int | None) -> tuple[str, ...]:
