@@ -77,7 +77,7 @@ def closure_sql(corpus: Corpus, depth: tuple[int, int] | None) -> tuple[str, lis
     mod = "" if depth is None else f" at depth {depth[0]}..{depth[1]}"
     compiled = compile_query(f"find a = word, b = word where a under b via {EDGE_SET}{mod}", corpus.store)
     sb = SqlBuilder(compiled.state.checked, compiled.state.plan)
-    name = sb.closure(EDGE_SET, None, depth)
+    name = sb.closure(EDGE_SET, compiled.state.checked.query.where, depth)
     return f'{with_(sb.walk_ctes, True)} SELECT "src", "dst" FROM {name}', sb.params
 
 

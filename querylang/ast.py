@@ -64,12 +64,15 @@ class Ref:
 
 @dataclass(frozen=True)
 class Func:
-    """``distance(a, b)`` (words between) or ``gap(a, b)`` (seconds between)."""
+    """``distance(a, b)`` (words between), ``gap(a, b)`` (seconds between) or ``label(a, b)``
+    (the labels of the edges that join a to b; the checker fills in ``edges``, the dependency
+    relation of the where clause whose edges they are)."""
 
     name: str
     a: str
     b: str
     pos: Pos = field(default=NOWHERE, compare=False)
+    edges: "Relation | None" = None
 
 
 @dataclass(frozen=True)
@@ -165,6 +168,18 @@ class FirstMention:
 
 
 @dataclass(frozen=True)
+class Root:
+    """``v is root``: v's head is the root of its sentence (CoNLL-U HEAD 0) in an edge set
+    (``via``, default the basic dependencies), optionally by a label (``as``)."""
+
+    subject: Expr
+    via: str | None = None
+    label: Literal | None = None
+    label_matches: bool = False
+    pos: Pos = field(default=NOWHERE, compare=False)
+
+
+@dataclass(frozen=True)
 class Relation:
     """``left <name> right`` with optional modifiers.
 
@@ -173,7 +188,8 @@ class Relation:
     between them, on before/after the time from the end of the first to the start of the
     second; tolerance: ``give or take 20ms`` on Allen's relations (two end points within it
     are equal); same_sentence: both nodes have one sentence (``in the same sentence``);
-    depth: (lo, hi) for ``under``/``above``; label: dependency label; via: edge set;
+    depth: (lo, hi) for ``under``/``above``; label: dependency label, exactly (``as "obl"`` is
+    not ``obl:tmod``) or, with label_matches, a regular expression (``as ~ "^obl"``); via: edge set;
     in_time: the Allen reading of ``overlaps``/``contains``/``inside``.
     """
 
@@ -189,6 +205,7 @@ class Relation:
     via: str | None = None
     in_time: bool = False
     pos: Pos = field(default=NOWHERE, compare=False)
+    label_matches: bool = False    # ``as ~ "regex"``: the label is matched, not compared
 
 
 @dataclass(frozen=True)
@@ -206,7 +223,7 @@ class Not:
     item: "Cond"
 
 
-Cond = Union[Compare, InList, Matches, Missing, FirstMention, Relation, And, Or, Not]
+Cond = Union[Compare, InList, Matches, Missing, FirstMention, Root, Relation, And, Or, Not]
 
 
 # ---- clauses ----------------------------------------------------------------

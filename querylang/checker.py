@@ -248,6 +248,8 @@ class _Checker:
                 for v in (expr.a, expr.b):
                     if not scope[v].time:
                         self.fail(f"gap() needs time stamps; layer {scope[v].name!r} has none", expr.pos)
+            if expr.name == "label":
+                return replace(expr, edges=self.dependency_between(expr, scope))
             return expr
         assert isinstance(expr, ast.Path)
         if own is not None:
@@ -291,6 +293,19 @@ class _Checker:
             return replace(cond, expr=expr)
         if isinstance(cond, ast.Missing):
             return replace(cond, expr=self.expr(cond.expr, scope, own))
+        if isinstance(cond, ast.Root):
+            if own is not None:
+                self.fail("write `v is root` in the where clause", cond.pos)
+            var = self.node(cond.subject, scope).var
+            layer = scope[var]
+            rel = ast.Relation("depends on", ast.Path((var,), cond.pos), ast.Path((var,), cond.pos),
+                               label=cond.label, via=cond.via, pos=cond.pos, label_matches=cond.label_matches)
+            via = self.edge_set(replace(rel, name="is root"), layer, layer)
+            if cond.label_matches:
+                problem = regex_problem(str(cond.label.value))
+                if problem:
+                    self.fail(f"bad regular expression: {problem}", cond.label.pos)
+            return replace(cond, subject=ast.Ref(var, "node", "", "node", cond.pos, var), via=via)
         if isinstance(cond, ast.FirstMention):
             if cond.subject is None:
                 if own is None:
@@ -373,6 +388,11 @@ class _Checker:
             hint = f"name the edge set the walk follows: `a {name} b via dep as ...`" if name in WALK_RELATIONS else None
             self.fail("`as` goes with `depends on`, `governs`, and `under`/`above` with `via`", rel.pos, hint)
         check_modifiers(rel, is_time, la, lb, self.fail)
+        if rel.label_matches:
+            problem = regex_problem(str(rel.label.value))
+            if problem:
+                self.fail(f"bad regular expression: {problem}", rel.label.pos,
+                          "the syntax is RE2's (no look-around, no back-references)")
         via = rel.via
         if is_time:
             for info in (la, lb):
@@ -404,6 +424,18 @@ class _Checker:
                           "token layer", rel.pos)
         return normalised(replace(rel, left=left, right=right, via=via, in_time=is_time))
 
+    def dependency_between(self, func: ast.Func, scope: dict[str, LayerInfo]) -> ast.Relation:
+        """The dependency relation of the where clause that joins label(a, b)'s two variables."""
+        for atom in ast.atoms(self.where):
+            if (isinstance(atom, ast.Relation) and atom.name in DEPENDENCY_RELATIONS and
+                    {getattr(atom.left, "parts", (None,))[0], getattr(atom.right, "parts", (None,))[0]}
+                    == {func.a, func.b}):
+                return self.relation(atom, scope)
+        self.fail(f"label({func.a}, {func.b}) is the label of the edges that join {func.a} and {func.b}, and the "
+                  f"query relates them by none", func.pos,
+                  f"join them first: `where {func.a} depends on {func.b}` (via an edge set if need be)")
+        raise AssertionError
+
     def edge_set(self, rel: ast.Relation, la: LayerInfo, lb: LayerInfo) -> str:
         """The edge set a dependency relation or walk follows; both layers must be its nodes."""
         edges = {n: l for n, l in self.all_layers.items() if l.kind == "edges"}
@@ -415,7 +447,9 @@ class _Checker:
         else:
             offered = [e for e in la.edge_sets if e in lb.edge_sets] or list(la.edge_sets) or list(lb.edge_sets)
             if not offered:
-                self.fail(f"`{rel.name}` follows dependency edges, and neither {la.name!r} nor {lb.name!r} has any",
+                which = f"layer {la.name!r} has none" if la.name == lb.name else \
+                    f"neither {la.name!r} nor {lb.name!r} has any"
+                self.fail(f"`{rel.name}` follows dependency edges, and {which}",
                           rel.pos, "edge sets: " + ", ".join(sorted(edges)) if edges else "this corpus has no edge sets")
             chosen = "dep" if "dep" in offered else offered[0]
         for layer in (la, lb):
@@ -427,7 +461,11 @@ class _Checker:
         return chosen
 
     # ---- the whole query -----------------------------------------------------------------
+    #: the where clause as written (label(a, b) looks its edges up there)
+    where: ast.Cond | None = None
+
     def check(self, query: ast.Query) -> Checked:
+        self.where = query.where
         scope = self.bind(query.bindings, {})
         bindings = tuple(
             replace(b, cond=self.cond(b.cond, scope, b.var) if b.cond is not None else None)

@@ -150,6 +150,8 @@ class SqlBuilder:
                 return (f"lower(translate(nfc_normalize({arg}), {self.param(FOLD_FROM)}, "
                         f"{self.param(FOLD_TO)}))")
             return f"{e.name}({arg})"       # lower, length (characters, not bytes)
+        if isinstance(e, ast.Func) and e.name == "label":
+            return self.edge_labels(e.edges, scope)
         if isinstance(e, ast.Func):
             a, b = scope.aliases[e.a], scope.aliases[e.b]
             if e.name == "gap":   # times are per recording: no gap between documents
@@ -239,6 +241,8 @@ class SqlBuilder:
             return f"regexp_matches({self.expr(c.expr, scope)}, {self.literal(c.pattern)})"
         if isinstance(c, ast.Missing):
             return f"({self.expr(c.expr, scope)} IS {'NOT ' if c.negated else ''}NULL)"
+        if isinstance(c, ast.Root):
+            return self.root(c, scope)
         if isinstance(c, ast.FirstMention):
             assert isinstance(c.subject, ast.Ref)
             a = scope.aliases[c.subject.var]
@@ -337,22 +341,48 @@ class SqlBuilder:
             # the basic dependency set is the layer's own tree: parent = head, label = deprel
             out = f"{self.col(a, 'parent')} = {self.col(b, 'id')}"
             if r.label is not None:
-                out += f" AND {self.col(a, 'deprel')} = {self.literal(r.label)}"
+                out += f" AND {self.label_test(self.col(a, 'deprel'), r)}"
             return f"({out})"
         edges = ident(r.via or "dep")
         if top:
-            label = f" WHERE {ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
+            label = f" WHERE {self.label_test(ident('label'), r)}" if r.label is not None else ""
             e = f"e{self.n_edges}"
             self.n_edges += 1
             scope.edge_joins.append(f"(SELECT DISTINCT {ident('src')}, {ident('dst')} FROM {edges}{label}) AS {e}")
             return f"({e}.{ident('src')} = {self.col(a, 'id')} AND {e}.{ident('dst')} = {self.col(b, 'id')})"
-        cond = f" AND x.{ident('label')} = {self.literal(r.label)}" if r.label is not None else ""
+        cond = f" AND {self.label_test('x.' + ident('label'), r)}" if r.label is not None else ""
         return (f"EXISTS (SELECT 1 FROM {edges} AS x WHERE x.{ident('src')} = {self.col(a, 'id')} "
                 f"AND x.{ident('dst')} = {self.col(b, 'id')}{cond})")
 
+    def root(self, c: ast.Root, scope: Scope) -> str:
+        """``v is root``: the basic tree's HEAD 0 (``head_num``), or an edge of the set with no head."""
+        a, layer = scope.aliases[c.subject.var], scope.layers[c.subject.var]
+        if basic_tree_edges(c.via, layer, layer) and "head_num" in layer.attrs:
+            out = f"{self.col(a, 'head_num')} = 0"
+            return f"({out} AND {self.label_test(self.col(a, 'deprel'), c)})" if c.label is not None else f"({out})"
+        test = f" AND {self.label_test('x.' + ident('label'), c)}" if c.label is not None else ""
+        return (f"EXISTS (SELECT 1 FROM {ident(c.via)} AS x WHERE x.{ident('src')} = {self.col(a, 'id')} "
+                f"AND x.{ident('dst')} IS NULL{test})")
+
+    def label_test(self, column: str, r: ast.Relation) -> str:
+        """The relation's label test on an edge's label column: exact, or a regular expression."""
+        if r.label_matches:
+            return f"regexp_matches({column}, {self.literal(r.label)})"
+        return f"{column} = {self.literal(r.label)}"
+
+    def edge_labels(self, r: ast.Relation, scope: Scope) -> str:
+        """``label(a, b)``: the labels of r's edges from the dependent to the head that pass r's
+        label test, in code point order, joined by "|" (one edge: its label)."""
+        dep, head = (r.left, r.right) if r.name == "depends on" else (r.right, r.left)
+        a, b = scope.aliases[dep.var], scope.aliases[head.var]
+        test = f" AND {self.label_test('x.' + ident('label'), r)}" if r.label is not None else ""
+        return (f"(SELECT array_to_string(list_sort(list_distinct(list(x.{ident('label')}))), {self.param('|')}) "
+                f"FROM {ident(r.via or 'dep')} AS x WHERE x.{ident('src')} = {self.col(a, 'id')} "
+                f"AND x.{ident('dst')} = {self.col(b, 'id')}{test})")
+
     def walk(self, r: ast.Relation, a: str, b: str, scope: Scope, top: bool) -> str:
         """``a under b via E``: a pair of the closure CTE of E (see :meth:`closure`)."""
-        table = self.closure(r.via or "dep", r.label, r.depth)
+        table = self.closure(r.via or "dep", r, r.depth)
         src, dst = ident("src"), ident("dst")
         if top:
             e = f"e{self.n_edges}"
@@ -364,7 +394,7 @@ class SqlBuilder:
         return (f"EXISTS (SELECT 1 FROM {table} AS x WHERE x.{src} = {self.col(a, 'id')} "
                 f"AND x.{dst} = {self.col(b, 'id')})")
 
-    def closure(self, edge_set: str, label: ast.Literal | None, depth: tuple[int, int] | None) -> str:
+    def closure(self, edge_set: str, r: ast.Relation, depth: tuple[int, int] | None) -> str:
         """A recursive CTE of the pairs (a, b) with b reachable from a along src -> dst.
 
         Measured against networkx on the open treebank (benchmarks/walks.py), so the walk
@@ -374,13 +404,13 @@ class SqlBuilder:
         (a, a) -- a cycle back to the start -- is dropped.  One CTE per distinct walk,
         MATERIALIZED: inlined into the join, DuckDB re-ran the recursion (GUM dev: 65 s -> 0.06 s).
         """
-        key = (edge_set, None if label is None else label.value, depth)
+        key = (edge_set, None if r.label is None else (r.label.value, r.label_matches), depth)
         if key in self.walks:
             return self.walks[key]
         name = f"walk{len(self.walks)}"
         self.walks[key] = name
         src, dst, lab = ident("src"), ident("dst"), ident("label")
-        only = f" AND {lab} = {self.literal(label)}" if label is not None else ""
+        only = f" AND {self.label_test(lab, r)}" if r.label is not None else ""
         edges = f"{name}_e"
         self.walk_ctes.append(f"{edges} AS MATERIALIZED (SELECT DISTINCT {src}, {dst} FROM {ident(edge_set)} "
                               f"WHERE {dst} IS NOT NULL{only})")

@@ -31,6 +31,7 @@ TERMINAL_NAMES = {
     "IS_MISSING": "is missing",
     "IS_NOT_MISSING": "is not missing",
     "IS_FIRST_MENTION": "is first mention",
+    "IS_ROOT": "is root",
     "FIRST_MENTION": "first mention",
     "SAME_READING": "in the same reading",
     "EVERY_READING": "in every reading",
@@ -44,7 +45,7 @@ TERMINAL_NAMES = {
     "SAME_SENTENCE": "in the same sentence",
     "WITHIN": "within",
     "AGGREGATE": "mean/min/max/sum/median/stdev/quantile",
-    "FUNCTION": "distance/gap",
+    "FUNCTION": "distance/gap/label",
     "VALUE_FUNCTION": "lower/fold/length",
     "COUNT": '"count"',
     "RATE": '"rate"',
@@ -273,6 +274,20 @@ class ToAst(Transformer):
     def bare_first_mention(self, token):
         return ast.FirstMention(None, _pos(token))
 
+    def root_test(self, expr, token, *mods):
+        fields: dict[str, object] = {}
+        for key, value, pos in mods:
+            if key not in ("via", "label"):
+                raise PlacedError(f"`is root` takes `via` and `as`, not `{MODIFIER_WORDS.get(key, key)}`", pos)
+            if key in fields:
+                raise PlacedError(f"`{MODIFIER_WORDS[key]}` is given twice", pos)
+            fields[key] = value
+        label = fields.get("label")
+        matches = label is not None and label.unit == "regex"
+        if matches:
+            label = replace(label, unit=None)
+        return ast.Root(expr, fields.get("via"), label, matches, _pos(token))
+
     def relation(self, left, name, right, *mods):
         fields: dict[str, object] = {}
         for key, value, pos in mods:
@@ -281,6 +296,9 @@ class ToAst(Transformer):
                 if k in fields:
                     raise PlacedError(f"`{MODIFIER_WORDS[k]}` is given twice for one relation", pos)
                 fields[k] = v
+        label = fields.get("label")
+        if label is not None and label.unit == "regex":      # as ~ "regex"
+            fields["label"], fields["label_matches"] = replace(label, unit=None), True
         return ast.Relation(" ".join(str(name).split()), left, right, pos=_pos(name), **fields)
 
     def at_most(self, token, quantity):
@@ -309,6 +327,9 @@ class ToAst(Transformer):
 
     def label(self, string):
         return ("label", ast.Literal(unquote(str(string)), None, _pos(string)), _pos(string))
+
+    def label_matches(self, token, string):
+        return ("label", ast.Literal(unquote(str(string)), "regex", _pos(string)), _pos(string))
 
     def via(self, name):
         return ("via", name.text, name.pos)

@@ -21,7 +21,7 @@ def type_of(expr: ast.Expr) -> str:
     if isinstance(expr, ast.Ref):
         return expr.type
     if isinstance(expr, ast.Func):
-        return "length" if expr.name == "distance" else "time"
+        return {"distance": "length", "gap": "time", "label": "str"}[expr.name]
     if isinstance(expr, ast.Call):
         return "int" if expr.name == "length" else "str"
     if isinstance(expr, ast.AggCall):

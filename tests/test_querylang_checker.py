@@ -108,6 +108,16 @@ def test_an_unknown_attribute_is_suggested_from_the_layers_own():
     assert err.hint.startswith("did you mean: type")
 
 
+def test_label_of_a_pair_needs_their_dependency_and_is_root_needs_edges():
+    text = "find a = word, b = word where a precedes b show label(a, b)"
+    err = error(text)
+    assert "relates them by none" in err.message and err.column == text.index("label(") + 1
+    assert "layer 'mention' has none" in error("find m = mention where m is root").message
+    assert "bad regular expression" in error('find a = word, b = word where a depends on b as ~ "("').message
+    c = run('find a = word, b = word where b governs a as ~ "^obl" show label(a, b)')
+    assert c.query.output.items[0].expr.edges.name == "governs"
+
+
 def test_relations_checked_against_layers():
     assert "same tree" in error("find a = word, b = phrase where a child of b allow cross product").message
     assert "needs a tree" in error("find a = mention, b = mention where a under b").message
