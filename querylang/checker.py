@@ -177,6 +177,8 @@ class _Checker:
         if name in cols:
             stored = TREE_NAMES.get(name, name) if layer.tree and name not in layer.attrs else name
             return ast.Ref(var, "column", QUERY_NAMES.get(stored, stored), cols[name], pos, written)
+        if name == "phrase" and layer.tree and "deprel" in layer.attrs and name not in layer.attrs:
+            return ast.Ref(var, "phrase", name, "str", pos, written)         # the dependency subtree's text
         if name == "chain_length" and "chain" in layer.attrs and name not in layer.attrs:
             return ast.Ref(var, "chain_length", name, "int", pos, written)     # mentions in the chain
         if name in DERIVED:
@@ -188,6 +190,8 @@ class _Checker:
         own = set(cols) - set(ANCHOR_COLUMNS) - set(TREE_COLUMNS) - {"node", "ord"}
         if "chain" in layer.attrs:
             own.add("chain_length")
+        if layer.tree and "deprel" in layer.attrs:
+            own.add("phrase")
         hint = suggest(name, own) or suggest(
             name, set(cols) | set(DERIVED) | {"sentence." + s for s in self.catalog.sentence_attrs()}
             | {"doc." + d for d in self.catalog.doc_attrs()} | {"sentence.words", "doc.words"})

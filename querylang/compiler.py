@@ -172,6 +172,8 @@ class SqlBuilder:
             return f"{a}_d.{ident(e.name)}"
         if e.kind in ("own_words", "sentence_words", "doc_words"):
             return self.words_of(a, e.kind)
+        if e.kind == "phrase":
+            return self.phrase(a, scope.layers[e.var])
         if e.kind == "chain_length":    # the mentions of the node's chain (none without a chain)
             layer = scope.layers[e.var]
             return (f"(CASE WHEN {self.col(a, 'chain')} IS NOT NULL THEN (SELECT count(*) FROM "
@@ -186,6 +188,19 @@ class SqlBuilder:
                 return f"({self.col(a, 't_end')} - {self.col(a, 't_start')})"
             return self.col(a, "t_start" if e.name == "start" else "t_end")
         raise AssertionError(e)
+
+    def phrase(self, a: str, layer: LayerInfo) -> str:
+        """``v.phrase``: the text of v's dependency subtree (v and every word under it, by the
+        tree's ``pre``/``post`` numbers), in text order; a subtree with a gap (a non-projective
+        one) is its runs of consecutive words joined by " … "."""
+        w, q = ident(layer.name), lambda x: ident(x)
+        run = (f"SELECT y.{q('start')}, y.{q('end')}, y.{q('ord')} - row_number() OVER (ORDER BY y.{q('ord')}) AS run "
+               f"FROM {w} AS y WHERE y.{q('sent')} = {self.col(a, 'sent')} AND y.{q('pre')} >= {self.col(a, 'pre')} "
+               f"AND y.{q('post')} <= {self.col(a, 'post')}")
+        runs = f"SELECT min(z.{q('start')}) AS s, max(z.{q('end')}) AS e FROM ({run}) AS z GROUP BY z.run"
+        piece = f"substr(d.{q('text')}, CAST(r.s - d.{q('base')} + 1 AS BIGINT), CAST(r.e - r.s AS BIGINT))"
+        return (f"(SELECT string_agg({piece}, {self.param(' … ')} ORDER BY r.s) FROM ({runs}) AS r, "
+                f"{ident(DOCUMENTS_VIEW)} AS d WHERE d.{q('doc')} = {self.col(a, 'doc')})")
 
     def words_of(self, a: str, kind: str) -> str:
         """A length in words: a sentence spans the words ``word_first..word_last`` (consecutive
