@@ -40,6 +40,11 @@ Definitions the SQL implements (the user-facing semantics):
   itself.  ``at depth lo..hi`` bounds the edges of the shortest such walk; ``as "L"`` walks
   only edges labelled exactly L.  ``above`` is the inverse.  Recursive SQL, not networkx:
   it was 2-20x faster on the open treebank (benchmarks/walks.py).
+* ``in every reading``: the nodes of a layer with readings come from one reading of one
+  sentence (as with ``in the same reading``), and a hit is kept when every reading of that
+  sentence has a hit with the same other nodes and, on that layer, nodes of the same spans and
+  labels: ``pp child of vp in every reading`` keeps a PP under a VP of the same span and label
+  in each reading, not one whose VP exists only in some.
 * Time: Allen's (1983) thirteen relations over ``[t_start, t_end]``, only between nodes of
   the same document (each document has its own recording clock).  ``give or take T`` is a
   tolerance on Allen's relations: two end points are equal when they differ by at most T,
@@ -714,6 +719,8 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, cr
                    f"{sb.col(a, 'sent')} AS _sent{i}"]
         if checked.layers[v].readings:
             select.append(f"{sb.col(a, 'reading')} AS _read{i}")
+            if "every reading" in q.qualifiers and "label" in checked.layers[v].attrs:
+                select.append(f"{sb.col(a, 'label')} AS _lab{i}")
         if listing:   # where each node is, in the user's terms (see place_columns)
             select += [f"{sb.col(a, c)} AS _{c}{i}" for c in place_columns(checked.layers[v])]
     out = q.output
@@ -753,8 +760,13 @@ def _statement(checked: Checked, plan: Plan, limit: int | None, context: int, cr
     last = "m"
     if "every reading" in q.qualifiers:
         for n, (layer_name, vs) in enumerate(_reading_groups(checked).items()):
+            # a hit of one reading is the same hit in another when its other nodes are the same
+            # and its nodes of this layer have the same spans and labels there
             i0 = variables.index(vs[0])
             keys = [f"_id{i}" for i, v in enumerate(variables) if v not in vs] + [f"_sent{i0}"]
+            for v in vs:
+                i = variables.index(v)
+                keys += [f"_start{i}", f"_end{i}"] + ([f"_lab{i}"] if "label" in checked.layers[v].attrs else [])
             key_list = ", ".join(keys)
             ctes.append(f"g{n} AS (SELECT {key_list}, count(DISTINCT _read{i0}) AS n FROM {last} GROUP BY {key_list})")
             ctes.append(f"r{n} AS (SELECT {ident('sent')} AS s, count(DISTINCT {ident('reading')}) AS n "
