@@ -71,12 +71,13 @@ def import_(
     time_unit: str = typer.Option("s", "--time-unit", help="tiers and spans: s or ms"),
     accept_poor_alignment: bool = typer.Option(False, "--accept-poor-alignment",
                                                help="keep a layer that aligns below the threshold"),
+    wait: float = typer.Option(0.0, "--wait", help="seconds to wait while another process writes the corpus"),
 ) -> None:
     """Import annotation files into a corpus (all or nothing)."""
     extra = {k: v for k, v in {"doc": doc, "layer": layer, "anchor": anchor, "time_unit": time_unit,
                                "accept_poor_alignment": accept_poor_alignment}.items()
              if v not in (None, False, "s")}
-    report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, **extra)
+    report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, wait=wait, **extra)
     counts = ", ".join(f"{v} {k}" for k, v in report.counts.items())
     out.print(f"imported {len(report.files)} file(s): {counts}")
     for w in report.warnings:

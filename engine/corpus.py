@@ -26,6 +26,7 @@ class Corpus:
     def __init__(self, store: Store) -> None:
         self.store = store
         self._con = None      # the query connection, with its views; made again after an import
+        self._seen = None     # the catalog's state when that connection was made (see _query_connection)
 
     @classmethod
     def create(cls, path: str | os.PathLike) -> "Corpus":
@@ -41,9 +42,10 @@ class Corpus:
 
     # -- import / export -------------------------------------------------------------
     def import_files(self, paths: Iterable[str | os.PathLike], format: str | None = None,
-                     prefix: str = "", lenient: bool = False, progress: bool = True,
+                     prefix: str = "", lenient: bool = False, progress: bool = True, wait: float = 0.0,
                      **extra) -> ImportReport:
-        """Import files of one format, all or nothing."""
+        """Import files of one format, all or nothing; ``wait``: seconds to wait for another
+        writer of the corpus to finish (none: refused at once)."""
         paths = [Path(p) for p in paths]
         if not paths:
             raise StrataError("no files to import")
@@ -56,7 +58,8 @@ class Corpus:
             raise StrataError(f"unknown format {fmt!r}; known: {', '.join(sorted(IMPORTERS))}")
         options = ImportOptions(prefix=prefix, lenient=lenient, progress=progress, extra=extra)
         self._forget_connection()
-        with import_memory_pool(), self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra}) as batch:
+        with import_memory_pool(), self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra},
+                                                     wait=wait) as batch:
             return module.import_files(batch, paths, options)
 
     def export(self, format: str = "conllu", out: str | os.PathLike | None = None, prefix: str = "") -> str | None:
@@ -97,8 +100,15 @@ class Corpus:
         return self.store.connect()
 
     def _query_connection(self):
-        """One connection for all queries: making the views costs tens of milliseconds."""
+        """One connection for all queries (making the views costs tens of milliseconds), made
+        again when the catalog has changed since: a long-lived Corpus answers from the newest
+        committed state on its next query, never from Parquet parts a writer has retired."""
+        seen = self.store.catalog_state()
+        if self._con is not None and seen != self._seen:
+            self._forget_connection()
+            self.store._forget_answers()
         if self._con is None:
+            self._seen = seen
             self._con = self.store.connect()
         return self._con
 

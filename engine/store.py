@@ -22,6 +22,7 @@ import json
 import os
 import re
 import shutil
+import time
 import uuid
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -35,6 +36,7 @@ import pyarrow.parquet as pq
 
 from engine import stats as part_statistics
 from engine.errors import StrataError
+from engine.lock import writer_lock
 from querylang.catalog import AttrInfo, LayerInfo
 
 #: 2: the CoNLL-U layers carry the standard's names (``word`` the syntactic words, ``token`` the
@@ -80,11 +82,15 @@ _LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
 
 #: Statistics of each part (engine/stats.py), merged per layer into layer_attrs; added to
 #: catalogs made before them at their next commit.
+#: seconds to keep trying to open a catalog that another process holds
+CATALOG_WAIT = 30.0
+
 _STATS_DDL = """
 CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT, sent_null BIGINT);
 ALTER TABLE part_stats ADD COLUMN IF NOT EXISTS sent_null BIGINT;
 CREATE TABLE IF NOT EXISTS part_attrs (path VARCHAR, attr VARCHAR, type VARCHAR, n_null BIGINT, registers BLOB);
 CREATE TABLE IF NOT EXISTS part_keys (path VARCHAR, col VARCHAR, key VARCHAR, n BIGINT, registers BLOB);
+CREATE TABLE IF NOT EXISTS retired (path VARCHAR, retired_at VARCHAR);
 """
 _CATALOG_DDL = """
 CREATE TABLE IF NOT EXISTS meta (key VARCHAR PRIMARY KEY, value VARCHAR);
@@ -147,7 +153,8 @@ class Store:
             raise StrataError(f"no corpus at {root} (make one with: strata init {root})")
         store = cls(root)
         store._check_schema()
-        shutil.rmtree(root / "staging", ignore_errors=True)  # leftovers of a killed import
+        # opening removes nothing: a live writer may own the staging folder (the next writer
+        # removes what a dead one left, see batch)
         return store
 
     def _check_schema(self) -> None:
@@ -167,9 +174,33 @@ class Store:
                           f"(it reads schema {SCHEMA_VERSION}); use the strata that made it")
 
     def catalog_connection(self, read_only: bool = True) -> duckdb.DuckDBPyConnection:
+        """A connection to the catalog file.  DuckDB lets one process write it or several read
+        it, and refuses the others at once ("Conflicting lock"); readers hold it for a few
+        milliseconds and the writer for its commit, so a refused open is tried again for up to
+        :data:`CATALOG_WAIT` seconds."""
         if not read_only:
             self._forget_answers()        # DuckDB opens a file one way at a time in a process
-        return duckdb.connect(str(self.root / CATALOG_FILE), read_only=read_only)
+        deadline = time.monotonic() + CATALOG_WAIT
+        while True:
+            try:
+                return duckdb.connect(str(self.root / CATALOG_FILE), read_only=read_only)
+            except duckdb.IOException as err:
+                if "lock" not in str(err).lower() or time.monotonic() >= deadline:
+                    raise StrataError(f"the corpus catalog {self.root / CATALOG_FILE} is busy: "
+                                      f"{str(err).splitlines()[0]}", hint="try again in a moment") from None
+                time.sleep(0.02)
+
+    def catalog_state(self) -> tuple:
+        """Size and modification time of the catalog file and its write-ahead log: they change
+        with every commit (a cheap test, no catalog connection)."""
+        out = []
+        for name in (CATALOG_FILE, CATALOG_FILE + ".wal"):
+            try:
+                st = (self.root / name).stat()
+                out.append((st.st_size, st.st_mtime_ns))
+            except FileNotFoundError:
+                out.append(None)
+        return tuple(out)
 
     def _forget_answers(self) -> None:
         """Drop the remembered catalog answers and close the reading connection."""
@@ -283,16 +314,38 @@ class Store:
         return con
 
     def create_views(self, con: duckdb.DuckDBPyConnection) -> None:
+        """The documents in memory and one view per layer over its listed Parquet parts.
+
+        The catalog is attached only while they are made and detached at once: an attached
+        catalog would hold DuckDB's file lock for as long as the connection lives and refuse
+        every writer of the corpus.  The connection then answers from this one committed
+        state (a generation) whatever a writer commits meanwhile; ``Corpus`` makes a new one
+        when the catalog has changed.
+        """
         cat = str(self.root / CATALOG_FILE).replace("'", "''")
-        con.execute(f"ATTACH '{cat}' AS cat (READ_ONLY)")
-        con.execute("CREATE OR REPLACE VIEW documents AS SELECT * FROM cat.documents")
-        keys = [k for (k,) in con.execute("SELECT DISTINCT key FROM cat.doc_attrs ORDER BY key").fetchall()]
-        cols = "".join(f", max(a.value) FILTER (WHERE a.key = {_sql_str(k)}) AS {_ident(k)}" for k in keys)
-        con.execute(f"""CREATE OR REPLACE VIEW doc AS SELECT d.doc, d.name{cols}
-            FROM cat.documents d LEFT JOIN cat.doc_attrs a ON a.doc = d.doc GROUP BY d.doc, d.name""")
-        for name, kind, props in con.execute("SELECT name, kind, props FROM cat.layers").fetchall():
-            paths = [str(self.root / p) for (p,) in con.execute(
-                "SELECT path FROM cat.parts WHERE layer = ? ORDER BY path", [name]).fetchall()]
+        deadline = time.monotonic() + CATALOG_WAIT
+        while True:
+            try:
+                con.execute(f"ATTACH '{cat}' AS cat (READ_ONLY)")
+                break
+            except duckdb.IOException as err:
+                if "lock" not in str(err).lower() or time.monotonic() >= deadline:
+                    raise StrataError(f"the corpus catalog is busy: {str(err).splitlines()[0]}") from None
+                time.sleep(0.02)
+        try:
+            con.execute("CREATE OR REPLACE TABLE documents AS SELECT * FROM cat.documents")
+            keys = [k for (k,) in con.execute("SELECT DISTINCT key FROM cat.doc_attrs ORDER BY key").fetchall()]
+            cols = "".join(f", max(a.value) FILTER (WHERE a.key = {_sql_str(k)}) AS {_ident(k)}" for k in keys)
+            con.execute(f"""CREATE OR REPLACE TABLE doc AS SELECT d.doc, d.name{cols}
+                FROM cat.documents d LEFT JOIN cat.doc_attrs a ON a.doc = d.doc GROUP BY d.doc, d.name""")
+            layers = con.execute("SELECT name, kind, props FROM cat.layers").fetchall()
+            parts: dict[str, list[str]] = {}
+            for layer, path in con.execute("SELECT layer, path FROM cat.parts ORDER BY layer, path").fetchall():
+                parts.setdefault(layer, []).append(str(self.root / path))
+        finally:
+            con.execute("DETACH cat")
+        for name, kind, props in layers:
+            paths = parts.get(name)
             if not paths:
                 continue
             files = "[" + ", ".join(_sql_str(p) for p in paths) + "]"
@@ -304,19 +357,44 @@ class Store:
 
     # -- writing ---------------------------------------------------------------------
     @contextmanager
-    def batch(self, importer: str, options: dict | None = None) -> Iterator["Batch"]:
-        """Stage writes; commit them all on success, none on any exception."""
-        self.keep_reader = True
-        batch = Batch(self, importer, options or {})
-        try:
-            yield batch
-            batch._commit()
-        except BaseException:
-            batch._abort()
-            raise
-        finally:
-            self.keep_reader = False
-            self._forget_answers()
+    def batch(self, importer: str, options: dict | None = None, *, wait: float = 0.0) -> Iterator["Batch"]:
+        """Stage writes; commit them all on success, none on any exception.
+
+        Holds the writer lock (engine/lock.py) throughout: a second writer is refused naming
+        this one, or waits up to ``wait`` seconds.  Holding it, the batch removes a dead
+        writer's staging folder, and its commit what else earlier writers left (see
+        :meth:`_remove_leftovers`).
+        """
+        with writer_lock(self.root, wait):
+            self._forget_answers()            # the corpus may have changed while we waited
+            shutil.rmtree(self.root / "staging", ignore_errors=True)     # a dead writer's
+            self.keep_reader = True
+            batch = Batch(self, importer, options or {})
+            try:
+                yield batch
+                batch._commit()
+            except BaseException:
+                batch._abort()
+                raise
+            finally:
+                self.keep_reader = False
+                self._forget_answers()
+
+    def _remove_leftovers(self) -> None:
+        """At a commit, before its own catalog write: the Parquet files a dead writer moved into
+        place without listing them, and the parts that earlier commits replaced (kept until now
+        for readers of the older state).  A writer that fails changes nothing on disk."""
+        listed = {p for (p,) in self._rows("SELECT path FROM parts")}
+        on_disk = [f for sub in ("layers", "edges") for f in (self.root / sub).glob("*/*.parquet")]
+        unlisted = [f for f in on_disk if str(f.relative_to(self.root)) not in listed]
+        retired = self._rows("SELECT count(*) FROM information_schema.tables WHERE table_name = 'retired'")[0][0]
+        for f in unlisted:
+            f.unlink(missing_ok=True)
+        if retired:
+            with self.catalog_connection(read_only=False) as con:
+                con.execute("DELETE FROM retired")
+        for d in [d for sub in ("layers", "edges") for d in (self.root / sub).glob("*") if d.is_dir()]:
+            _rmdir_if_empty(d)
 
 
 class Batch:
@@ -541,6 +619,7 @@ class Batch:
     def _commit(self) -> None:
         for fn in self._finalisers:
             fn(self)
+        self.store._remove_leftovers()
         for layer in list(self._writers):
             self.staged_paths(layer)
         moved: list[Path] = []
@@ -560,13 +639,13 @@ class Batch:
             for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
                 os.replace(staged, self.store.root / rel)
                 moved.append(self.store.root / rel)
-            old = self._write_catalog(parts)
+            self._write_catalog(parts)
         except BaseException:
             for p in moved:
                 p.unlink(missing_ok=True)
             raise
-        for rel in old:
-            (self.store.root / rel).unlink(missing_ok=True)
+        # the replaced parts stay on disk, listed as retired, for readers of the older state;
+        # the next writer removes them (Store._remove_leftovers)
         shutil.rmtree(self.stage, ignore_errors=True)
         _rmdir_if_empty(self.stage.parent)
 
@@ -580,6 +659,7 @@ class Batch:
                 for layer in sorted(self._replaced):
                     gone = [p for (p,) in con.execute("SELECT path FROM parts WHERE layer = ?", [layer]).fetchall()]
                     old += gone
+                    _insert(con, "INSERT INTO retired", ("path", "retired_at"), [(g, _now()) for g in gone])
                     con.execute("DELETE FROM parts WHERE layer = ?", [layer])
                     for table in ("part_stats", "part_attrs", "part_keys"):
                         con.execute(f"DELETE FROM {table} WHERE path IN (SELECT unnest(?::VARCHAR[]))", [gone])
