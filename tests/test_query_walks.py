@@ -99,13 +99,19 @@ def test_above_is_the_inverse_walk(corpus, graphs):
     assert strata_pairs(corpus, "word", "word", "a above b via enhanced") == want
 
 
-@pytest.mark.parametrize("depth", [(1, 1), (2, 3), (1, 4)])
+@pytest.mark.parametrize("depth", [(1, 1), (2, 3), (1, 4), (5, 100000)])
 def test_depth_is_the_shortest_walk(corpus, graphs, depth):
     lo, hi = depth
     mod = f"at depth {lo}" if lo == hi else f"at depth {lo}..{hi}"
     want = of_layers(reachable(graphs["enhanced"], depth), graphs["layer"], "word", "word")
     assert want
     assert strata_pairs(corpus, "word", "word", f"a under b via enhanced {mod}") == want
+
+
+def test_a_depth_range_beyond_the_graph_is_the_whole_closure(corpus, graphs):
+    """On a graph with cycles the walk stops when a level finds no new pair."""
+    want = of_layers(reachable(graphs["enhanced"]), graphs["layer"], "word", "word")
+    assert strata_pairs(corpus, "word", "word", "a under b via enhanced at depth 1..1000000") == want
 
 
 def test_depth_one_is_a_single_edge(corpus, graphs):
