@@ -508,10 +508,8 @@ class _Checker:
                 v = parent[v]
             return v
 
-        for atom in ast.atoms(query.where):
-            vs = sorted(ast.vars_in(atom) & set(scope))
-            for v in vs[1:]:
-                parent[find(v)] = find(vs[0])
+        for a, b in related_pairs(query.where, set(scope)):
+            parent[find(b)] = find(a)
         if query.qualifiers & {"same reading", "every reading"}:
             by_layer: dict[str, list[str]] = {}
             for v, info in scope.items():
@@ -528,7 +526,8 @@ class _Checker:
             a, b = parts[0][0], parts[1][0]
             binding = next(bd for bd in query.bindings if bd.var == b)
             self.fail(f"{a!r} and {b!r} are not related, so every pair of them would match (a cross product)",
-                      binding.pos, f"relate them, e.g. `where {b} inside {a}`, or add `allow cross product`")
+                      binding.pos, f"relate them, e.g. `where {b} inside {a}`, or add `allow cross product`; a test "
+                      "under `not`, or in only one branch of `or`, does not relate them")
 
 
 def _adjacency_layer(la: LayerInfo, lb: LayerInfo) -> str | None:
@@ -555,6 +554,36 @@ def _in_seconds(value: ast.Expr, other: ast.Expr) -> ast.Expr:
             and not isinstance(value.value, bool) and is_time(other)):
         return replace(value, unit="s")
     return value
+
+
+def related_pairs(cond: ast.Cond | None, variables: set[str]) -> set[tuple[str, str]]:
+    """Pairs of variables that every match has related: by a test on both in an ``and``, or in
+    every branch of an ``or``; never under ``not`` (``not a precedes b`` holds for almost every
+    pair).  Transitive closure is the caller's (union-find).  On a checked condition.
+    """
+    if cond is None or isinstance(cond, ast.Not):
+        return set()
+    if isinstance(cond, ast.And):
+        return set().union(*(related_pairs(c, variables) for c in cond.items))
+    if isinstance(cond, ast.Or):
+        branches = [_components(related_pairs(c, variables), variables) for c in cond.items]
+        return {(a, b) for a in sorted(variables) for b in sorted(variables)
+                if a < b and all(br[a] == br[b] for br in branches)}
+    vs = sorted(ast.vars_in(cond) & variables)
+    return {(vs[0], v) for v in vs[1:]}
+
+
+def _components(pairs: set[tuple[str, str]], variables: set[str]) -> dict[str, str]:
+    """Each variable's component (a representative) under the pairs."""
+    comp = {v: v for v in variables}
+
+    def find(v: str) -> str:
+        while comp[v] != v:
+            v = comp[v]
+        return v
+    for a, b in pairs:
+        comp[find(b)] = find(a)
+    return {v: find(v) for v in variables}
 
 
 def check(query: ast.Query, catalog: Catalog, text: str = "") -> Checked:

@@ -120,7 +120,7 @@ def ferry():
     ("find a = phrase, b = phrase where a under b", True),
     ("find a = token, b = token, c = token where a precedes b allow cross product", False),   # c is free
     ("find a = mention, b = mention where a same entity as b", False),
-    ("find a = token, s = sentence where not (a inside s)", False),
+    ("find a = token, s = sentence where not (a inside s) allow cross product", False),
 ])
 def test_document_locality(ferry, query, local):
     _, cat = ferry

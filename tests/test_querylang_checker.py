@@ -118,6 +118,25 @@ def test_label_of_a_pair_needs_their_dependency_and_is_root_needs_edges():
     assert c.query.output.items[0].expr.edges.name == "governs"
 
 
+@pytest.mark.parametrize("where, related", [
+    ("a precedes b", True),
+    ("not a precedes b", False),
+    ("a precedes b or a.lemma = \"x\"", False),
+    ("a precedes b or b precedes a", True),
+    ("(a precedes b or a.lemma = \"x\") and b inside a", True),
+    ("not (a precedes b and b.lemma = \"y\")", False),
+    ("a precedes b and not b.lemma = a.lemma", True),
+])
+def test_the_cross_product_guard_reads_not_and_or(where, related):
+    text = f"find a = word, b = word where {where}"
+    if related:
+        run(text)
+    else:
+        err = error(text)
+        assert "cross product" in err.message and "under `not`" in err.hint
+        run(text + " allow cross product")
+
+
 def test_relations_checked_against_layers():
     assert "same tree" in error("find a = word, b = phrase where a child of b allow cross product").message
     assert "needs a tree" in error("find a = mention, b = mention where a under b").message
