@@ -34,7 +34,7 @@ def user_errors(fn: Callable) -> Callable:
             err.print(f"[bold red]error:[/] {_escape(str(e))}", soft_wrap=True)
             raise typer.Exit(EXIT_USER_ERROR)
         except KeyboardInterrupt:
-            err.print("interrupted; the corpus is unchanged")
+            err.print("interrupted; the corpus is unchanged", soft_wrap=True)
             raise typer.Exit(130)
     return wrapper
 
@@ -140,6 +140,9 @@ def query(
                                 "tokens: a contraction is one), inside the hit's sentence"),
     cross_sentences: bool = typer.Option(False, "--cross-sentences", help="let the context run on into the "
                                          "sentences before and after the hit's"),
+    timeout: Optional[float] = typer.Option(None, "--timeout", help="stop the query after this many seconds"),
+    memory: Optional[str] = typer.Option(None, "--memory", help="memory limit of the query, e.g. 2GB (default: "
+                                         "half the machine's); beyond it DuckDB spills to .spill/ in the corpus"),
 ) -> None:
     """Run a query and print its hit table, or save every hit to a file."""
     from engine.output_files import check_writable, hit_format
@@ -149,7 +152,8 @@ def query(
     elif fmt == "parquet":
         raise StrataError("parquet output needs a file: add -o FILE")
     q = _query_text(text, file)
-    hits = _open(corpus).query(q, limit=limit, context=context, cross_sentences=cross_sentences)
+    hits = _open(corpus).query(q, limit=limit, context=context, cross_sentences=cross_sentences,
+                               timeout=timeout, memory=memory)
     write_hits(hits, fmt, output, limit)
     for note in hits.notes:
         err.print(f"note: {note}", markup=False)

@@ -117,11 +117,13 @@ class Corpus:
             self._con.close()
             self._con = None
 
-    def query(self, text: str, *, limit: int | None = None, context: int = 5, cross_sentences: bool = False):
-        """Run a query; returns a hit table (:class:`engine.results.Hits`)."""
+    def query(self, text: str, *, limit: int | None = None, context: int = 5, cross_sentences: bool = False,
+              timeout: float | None = None, memory: str | None = None):
+        """Run a query; returns a hit table (:class:`engine.results.Hits`).  ``timeout`` in
+        seconds, ``memory`` a size (``"2GB"``; default half the machine's memory)."""
         from engine.execute import run_query
         return run_query(self._query_connection(), self.store, text, limit=limit, context=context,
-                         cross_sentences=cross_sentences)
+                         cross_sentences=cross_sentences, timeout=timeout, memory=memory)
 
     def explain(self, text: str) -> str:
         from engine.execute import compile_query

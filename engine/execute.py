@@ -12,6 +12,9 @@ is also turned into a StrataError, so the command line never shows a traceback.
 from __future__ import annotations
 
 import re
+import signal
+import threading
+import time
 import warnings
 from dataclasses import dataclass
 
@@ -117,15 +120,35 @@ def compile_query(text: str, catalog: Catalog, *, limit: int | None = None, cont
 
 
 def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
-              limit: int | None = None, context: int = 5, cross_sentences: bool = False) -> Hits:
-    """Every match of ``text`` in document order (or the aggregate it asks for)."""
+              limit: int | None = None, context: int = 5, cross_sentences: bool = False,
+              timeout: float | None = None, memory: str | None = None) -> Hits:
+    """Every match of ``text`` in document order (or the aggregate it asks for).
+
+    ``timeout``: seconds before the query is stopped (a StrataError); ``memory``: DuckDB's
+    memory limit for it (``"2GB"``; the connection's own otherwise, see Store.connect).
+    """
+    if memory is not None and not MEMORY_SIZE.fullmatch(memory.strip()):
+        raise StrataError(f"--memory {memory!r} is not a size", hint="write e.g. --memory 2GB or --memory 512MB")
+    if timeout is not None and timeout <= 0:
+        raise StrataError(f"--timeout {timeout:g} is not a time limit", hint="give seconds above 0, e.g. --timeout 30")
     compiled = compile_query(text, catalog, limit=limit, context=context, cross_sentences=cross_sentences)
     rounds: list[tuple[int, int, int]] = []
+    deadline = None if timeout is None else time.monotonic() + timeout
     try:
+        if memory is not None:
+            con.execute("SET memory_limit = $1", [memory])
+        limit_now = con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
         if compiled.state.sql.window is not None:
-            table, rounds = _run_windowed(con, compiled)
+            table, rounds = _run_windowed(con, compiled, deadline)
         else:
-            table = _fetch_arrow(con, compiled.sql, compiled.params)
+            table = _fetch_arrow(con, compiled.sql, compiled.params, deadline)
+    except QueryTimeout:
+        raise StrataError(f"the query ran past its time limit of {timeout:g} s and was stopped",
+                          hint="allow it longer with --timeout SECONDS, or narrow the query") from None
+    except duckdb.OutOfMemoryException as err:
+        raise StrataError(f"the query needs more memory than its limit of {limit_now} "
+                          f"({_first_line(err)})",
+                          hint="raise the limit with --memory (e.g. --memory 8GB), or narrow the query") from None
     except duckdb.Error as err:   # e.g. a value that does not cast; never a traceback
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
                           line=1, column=1) from None
@@ -151,7 +174,8 @@ WINDOW_GROWTH = 8
 WINDOW_MAX_SHARE = 0.5          # a window reaching past this share of the text: run unwindowed instead
 
 
-def _run_windowed(con: duckdb.DuckDBPyConnection, compiled: CompiledQuery) -> tuple[pa.Table, list]:
+def _run_windowed(con: duckdb.DuckDBPyConnection, compiled: CompiledQuery,
+                  deadline: float | None = None) -> tuple[pa.Table, list]:
     """The first ``limit`` hits from growing windows of documents, or from the plain statement.
 
     Windows are consecutive document ranges ``[lo, hi)``: their hits are disjoint and each
@@ -166,7 +190,7 @@ def _run_windowed(con: duckdb.DuckDBPyConnection, compiled: CompiledQuery) -> tu
     want = int(sql.params[sql.limit_param])
     docs = _documents_in_order(con)
     if docs is None:
-        return _fetch_arrow(con, compiled.sql, compiled.params), []
+        return _fetch_arrow(con, compiled.sql, compiled.params, deadline), []
     numbers = [d for d, _ in docs]
     cumulative = [0]
     for _, length in docs:
@@ -183,11 +207,11 @@ def _run_windowed(con: duckdb.DuckDBPyConnection, compiled: CompiledQuery) -> tu
             hi += 1
         if cumulative[hi] > WINDOW_MAX_SHARE * total:
             # also the way out before the last document: hits without any start sort last
-            return _fetch_arrow(con, compiled.sql, compiled.params), []
+            return _fetch_arrow(con, compiled.sql, compiled.params, deadline), []
         params = list(window.params)
         params[window.doc_lo], params[window.doc_hi] = numbers[lo], numbers[hi]
         params[window.limit] = want - found
-        table = _fetch_arrow(con, window.sql, params)
+        table = _fetch_arrow(con, window.sql, params, deadline)
         tables.append(table)
         rounds.append((numbers[lo], numbers[hi], table.num_rows))
         found += table.num_rows
@@ -217,20 +241,65 @@ def _cursor(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
     return cur
 
 
-def _fetch_arrow(con: duckdb.DuckDBPyConnection, sql: str, params: list[object]):
-    """Run and fetch as Arrow.
+def _fetch_arrow(con: duckdb.DuckDBPyConnection, sql: str, params: list[object],
+                 deadline: float | None = None):
+    """Run and fetch as Arrow, in a worker thread the caller waits for.
+
+    Ctrl-C: while the query runs, SIGINT goes to a handler of ours that stops it with the
+    cursor's ``interrupt()`` (DuckDB checks for it between chunks of work); the wait then
+    ends at once and KeyboardInterrupt goes on up.  Python's own handler left in place lost
+    the worker's call and left the connection marked busy, and without a worker the query
+    ignored Ctrl-C.  Past ``deadline`` (``time.monotonic()``) the query is stopped the same way
+    and :class:`QueryTimeout` raised.
 
     ``execute(...).to_arrow_table()`` is ~3 ms faster per query than the relational
     ``sql(...)`` path (it binds once; measured on the suite's smallest queries), at the
     price of one copy of the result, which DuckDB warns about; the warning is silenced here.
     """
     cur = _cursor(con)
+    box: dict[str, object] = {}
+
+    def work() -> None:
+        try:
+            with warnings.catch_warnings():
+                warnings.filterwarnings("ignore", message="Arrow output on a DB-API result")
+                box["table"] = cur.execute(sql, params).to_arrow_table()
+        except BaseException as err:            # handed to the waiting thread
+            box["error"] = err
+
+    def stop(signum, frame) -> None:
+        box["interrupted"] = True
+        cur.interrupt()
+
+    main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGINT, stop) if main else None
+    worker = threading.Thread(target=work, name="strata-query", daemon=True)
     try:
-        with warnings.catch_warnings():
-            warnings.filterwarnings("ignore", message="Arrow output on a DB-API result")
-            return cur.execute(sql, params).to_arrow_table()
+        worker.start()
+        worker.join(None if deadline is None else max(deadline - time.monotonic(), 0.0))
+        if worker.is_alive():                   # past the deadline
+            box["timeout"] = True
+            cur.interrupt()
+            worker.join()
     finally:
-        cur.close()
+        if main:
+            signal.signal(signal.SIGINT, previous)
+    cur.close()
+    if box.get("interrupted"):
+        raise KeyboardInterrupt
+    if box.get("timeout"):
+        raise QueryTimeout()
+    if "error" in box:
+        raise box["error"]
+    return box["table"]
+
+
+#: a size as DuckDB's memory_limit takes it
+MEMORY_SIZE = re.compile(r"\d+(\.\d+)?\s*([KMGT]i?B|B)", re.IGNORECASE)
+
+
+class QueryTimeout(Exception):
+    """The query ran past its time limit (turned into a StrataError by run_query)."""
 
 
 def _first_line(err: Exception) -> str:

@@ -84,6 +84,19 @@ _LAYER_NAME = re.compile(r"[A-Za-z][A-Za-z0-9_-]*(\.[A-Za-z][A-Za-z0-9_-]*)*")
 #: catalogs made before them at their next commit.
 #: seconds to keep trying to open a catalog that another process holds
 CATALOG_WAIT = 30.0
+#: where a query spills what does not fit in its memory limit (DuckDB's temp_directory)
+SPILL_DIR = ".spill"
+#: the share of the machine's memory a query may use unless told (--memory)
+MEMORY_SHARE = 0.5
+
+
+def default_memory_limit() -> str:
+    """Half the machine's physical memory, in MB (DuckDB's own default is 80 %)."""
+    try:
+        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError):
+        return "4GB"
+    return f"{max(int(total * MEMORY_SHARE / 2 ** 20), 256)}MB"
 
 _STATS_DDL = """
 CREATE TABLE IF NOT EXISTS part_stats (path VARCHAR PRIMARY KEY, rows BIGINT, sent_null BIGINT);
@@ -306,8 +319,11 @@ class Store:
 
     # -- query connection --------------------------------------------------------------
     def connect(self) -> duckdb.DuckDBPyConnection:
-        """An in-memory DuckDB connection with the views of DEVELOPERS.md."""
-        con = duckdb.connect()
+        """An in-memory DuckDB connection with the views of DEVELOPERS.md, under a memory limit
+        (:func:`default_memory_limit`) and spilling what does not fit to ``.spill/`` inside the
+        corpus."""
+        con = duckdb.connect(config={"memory_limit": default_memory_limit(),
+                                     "temp_directory": str(self.root / SPILL_DIR)})
         # a missing view must be an error, never a Python variable of the same name
         con.execute("SET python_enable_replacements = false")
         self.create_views(con)
