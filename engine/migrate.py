@@ -35,6 +35,7 @@ import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 from engine.errors import StrataError
+from engine.lock import writer_lock
 from engine.store import CATALOG_FILE, ROW_GROUP_SIZE, SCHEMA_VERSION, Store, part_write_options
 
 COLUMN_SWAP = {"tok_first": "word_first", "tok_last": "word_last",
@@ -97,14 +98,15 @@ def migrate(root: str | os.PathLike, *, progress=None) -> dict:
         raise StrataError(f"{root} has corpus schema {version!r}, which this strata cannot migrate")
     work = root.with_name(f".{root.name}.migrating-{os.getpid()}")
     old = root.with_name(f".{root.name}.schema{version}-{os.getpid()}")
-    shutil.rmtree(work, ignore_errors=True)
-    try:
-        summary = _build(root, work, progress, rename=version == "1")
-    except BaseException:
+    with writer_lock(root):       # no import may change the corpus while it is rebuilt
         shutil.rmtree(work, ignore_errors=True)
-        raise
-    os.rename(root, old)          # from here the new corpus is complete: exchange the folders
-    os.rename(work, root)
+        try:
+            summary = _build(root, work, progress, rename=version == "1")
+        except BaseException:
+            shutil.rmtree(work, ignore_errors=True)
+            raise
+        os.rename(root, old)          # from here the new corpus is complete: exchange the folders
+        os.rename(work, root)
     shutil.rmtree(old, ignore_errors=True)
     return summary
 

@@ -652,10 +652,14 @@ class Batch:
             if str(staged) in self._part_stats:
                 self._part_stats[parts[-1][1]] = self._part_stats.pop(str(staged))
         try:
+            _crash_point("before-move")
             for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
                 os.replace(staged, self.store.root / rel)
                 moved.append(self.store.root / rel)
+                _crash_point("mid-move")
+            _crash_point("before-catalog")
             self._write_catalog(parts)
+            _crash_point("after-catalog")
         except BaseException:
             for p in moved:
                 p.unlink(missing_ok=True)
@@ -815,6 +819,17 @@ class Batch:
 
 
 # -- helpers ----------------------------------------------------------------------------
+#: the named steps of a commit at which tests may kill the writer (STRATA_KILL_AT=step)
+COMMIT_STEPS = ("before-move", "mid-move", "before-catalog", "after-catalog")
+
+
+def _crash_point(step: str) -> None:
+    """Fault injection for the crash tests: with ``STRATA_KILL_AT`` naming this step, the
+    process kills itself with SIGKILL here, as ``kill -9`` would (nothing is cleaned up)."""
+    if os.environ.get("STRATA_KILL_AT") == step:
+        os.kill(os.getpid(), 9)
+
+
 def _edge_sets(name: str, props: dict, declared: dict[str, tuple[str, dict]]) -> list[str]:
     """The edge sets a layer's nodes take part in: as declared, and for the empty nodes of a
     CoNLL-U import also its enhanced graph (DEPS may name an empty node: "8.1:nsubj"), which
