@@ -50,6 +50,7 @@ TERMINAL_NAMES = {
     "COUNT": '"count"',
     "RATE": '"rate"',
     "TRUE": "true",
+    "NOT": '"not"',
     "FALSE": "false",
     "BY": '"by"',
     "HAVING": '"having"',
@@ -239,16 +240,16 @@ class ToAst(Transformer):
         return ("limit", int(n))
 
     # conditions
-    def or_(self, a, b):
-        items = (a.items if isinstance(a, ast.Or) else (a,)) + (b.items if isinstance(b, ast.Or) else (b,))
-        return ast.Or(items)
+    def or_(self, *conds):
+        return ast.Or(tuple(i for c in conds for i in (c.items if isinstance(c, ast.Or) else (c,))))
 
-    def and_(self, a, b):
-        items = (a.items if isinstance(a, ast.And) else (a,)) + (b.items if isinstance(b, ast.And) else (b,))
-        return ast.And(items)
+    def and_(self, *conds):
+        return ast.And(tuple(i for c in conds for i in (c.items if isinstance(c, ast.And) else (c,))))
 
-    def not_(self, item):
-        return ast.Not(item)
+    def not_(self, *parts):
+        """``not not ... c``: an even number of nots is c itself."""
+        *nots, item = parts
+        return ast.Not(item) if len(nots) % 2 else item
 
     def compare(self, left, op, right):
         return ast.Compare(str(op), left, right, _pos(op))
@@ -398,6 +399,7 @@ def parse(text: str) -> ast.Query:
     """Parse query text; raise StrataError with line/column on any syntax error."""
     if not text.strip():
         raise StrataError("empty query: write e.g. find w = word(form = \"ferry\")", query=text or " ", line=1, column=1)
+    _check_nesting(text)
     try:
         tree = _lark().parse(text)
     except (UnexpectedToken, UnexpectedCharacters) as err:
@@ -423,6 +425,35 @@ def parse(text: str) -> ast.Query:
             e = err.orig_exc
             raise StrataError(e.message, query=text, line=e.pos.line, column=e.pos.column, hint=e.hint) from None
         raise StrataError(f"cannot read the query: {err.orig_exc}", query=text, line=1, column=1) from None
+
+
+#: parentheses a query may nest (chains of and, or, not have no limit: they are lists)
+MAX_NESTING = 100
+
+
+def _check_nesting(text: str) -> None:
+    """Refuse parentheses nested deeper than :data:`MAX_NESTING`, with the caret at the first
+    one too deep (outside quoted strings): the passes walk conditions recursively."""
+    depth, in_string, i = 0, False, 0
+    while i < len(text):
+        ch = text[i]
+        if in_string:
+            if ch == "\\":
+                i += 1
+            elif ch == '"':
+                in_string = False
+        elif ch == '"':
+            in_string = True
+        elif ch == "(":
+            depth += 1
+            if depth > MAX_NESTING:
+                line, column = _place(text, i)
+                raise StrataError(f"parentheses nest deeper than {MAX_NESTING} levels here", query=text,
+                                  line=line, column=column,
+                                  hint="chains of and, or and not need no parentheses: a or b or c ...")
+        elif ch == ")":
+            depth = max(depth - 1, 0)
+        i += 1
 
 
 def _place(text: str, offset: int) -> tuple[int, int]:
