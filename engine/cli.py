@@ -5,18 +5,35 @@ and ends the command with exit code 2; there is no traceback for those.
 """
 from __future__ import annotations
 
-import functools
-import shutil
+import os
+import signal
 import sys
-import tempfile
-from pathlib import Path
-from typing import Callable, List, Optional
 
-import typer
-from rich.console import Console
-from rich.table import Table
 
-from engine.errors import EXIT_USER_ERROR, StrataError
+def _interrupted_while_starting(signum, frame) -> None:   # pragma: no cover - timing
+    """Ctrl-C before a command has begun: nothing was touched, so end at once, quietly."""
+    sys.stderr.write("interrupted; the corpus is unchanged\n")
+    sys.stderr.flush()
+    os._exit(130)
+
+
+# as a program (`strata`, `python -m engine.cli`), not when imported by other code: before the
+# heavy imports below (typer, rich, and later DuckDB and pyarrow); each command puts Python's
+# own handler back when it starts (user_errors), so its clean-up runs
+if __name__ == "__main__" or os.path.basename(sys.argv[0]) == "strata":
+    signal.signal(signal.SIGINT, _interrupted_while_starting)
+
+import functools  # noqa: E402
+import shutil  # noqa: E402
+import tempfile  # noqa: E402
+from pathlib import Path  # noqa: E402
+from typing import Callable, List, Optional  # noqa: E402
+
+import typer  # noqa: E402
+from rich.console import Console  # noqa: E402
+from rich.table import Table  # noqa: E402
+
+from engine.errors import EXIT_USER_ERROR, StrataError  # noqa: E402
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="strata: import annotation layers onto shared anchors and query across them.")
@@ -28,6 +45,8 @@ def user_errors(fn: Callable) -> Callable:
     """Turn StrataError into a message on stderr and exit code 2."""
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
+        if signal.getsignal(signal.SIGINT) is _interrupted_while_starting:
+            signal.signal(signal.SIGINT, signal.default_int_handler)
         try:
             return fn(*args, **kwargs)
         except StrataError as e:

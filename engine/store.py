@@ -22,6 +22,9 @@ import json
 import os
 import re
 import shutil
+import signal
+import sys
+import threading
 import time
 import uuid
 from contextlib import contextmanager
@@ -651,19 +654,21 @@ class Batch:
                           self.import_id))
             if str(staged) in self._part_stats:
                 self._part_stats[parts[-1][1]] = self._part_stats.pop(str(staged))
-        try:
-            _crash_point("before-move")
-            for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
-                os.replace(staged, self.store.root / rel)
-                moved.append(self.store.root / rel)
-                _crash_point("mid-move")
-            _crash_point("before-catalog")
-            self._write_catalog(parts)
-            _crash_point("after-catalog")
-        except BaseException:
-            for p in moved:
-                p.unlink(missing_ok=True)
-            raise
+        _crash_point("staged")            # the last moment at which Ctrl-C abandons the import
+        with _ctrl_c_deferred():
+            try:
+                _crash_point("before-move")
+                for (layer, rel, _, _), staged in zip(parts, sorted(self.stage.glob("*.parquet"))):
+                    os.replace(staged, self.store.root / rel)
+                    moved.append(self.store.root / rel)
+                    _crash_point("mid-move")
+                _crash_point("before-catalog")
+                self._write_catalog(parts)
+                _crash_point("after-catalog")
+            except BaseException:
+                for p in moved:
+                    p.unlink(missing_ok=True)
+                raise
         # the replaced parts stay on disk, listed as retired, for readers of the older state;
         # the next writer removes them (Store._remove_leftovers)
         shutil.rmtree(self.stage, ignore_errors=True)
@@ -819,15 +824,40 @@ class Batch:
 
 
 # -- helpers ----------------------------------------------------------------------------
-#: the named steps of a commit at which tests may kill the writer (STRATA_KILL_AT=step)
-COMMIT_STEPS = ("before-move", "mid-move", "before-catalog", "after-catalog")
+#: the named steps of a commit at which tests may kill the writer (STRATA_KILL_AT=step) or
+#: hold it for a while (STRATA_PAUSE_AT=step, STRATA_PAUSE_SECONDS, default 5)
+COMMIT_STEPS = ("staged", "before-move", "mid-move", "before-catalog", "after-catalog")
 
 
 def _crash_point(step: str) -> None:
-    """Fault injection for the crash tests: with ``STRATA_KILL_AT`` naming this step, the
-    process kills itself with SIGKILL here, as ``kill -9`` would (nothing is cleaned up)."""
+    """Fault injection for the crash and interrupt tests: with ``STRATA_KILL_AT`` naming this
+    step, the process kills itself with SIGKILL here, as ``kill -9`` would (nothing is cleaned
+    up); with ``STRATA_PAUSE_AT`` naming it, it says so on stderr and sleeps, so that a test can
+    send a signal at a known step instead of guessing a delay."""
     if os.environ.get("STRATA_KILL_AT") == step:
         os.kill(os.getpid(), 9)
+    if os.environ.get("STRATA_PAUSE_AT") == step:
+        print(f"paused at {step}", file=sys.stderr, flush=True)
+        time.sleep(float(os.environ.get("STRATA_PAUSE_SECONDS", "5")))
+
+
+@contextmanager
+def _ctrl_c_deferred() -> Iterator[None]:
+    """Hold Ctrl-C (SIGINT) while the parts move and the catalog is written.
+
+    Why: an interrupt between the catalog's COMMIT and the return from it would have the
+    clean-up delete parts the catalog already lists.  The section takes milliseconds, so the
+    import finishes and the late Ctrl-C is dropped: the corpus then holds the whole import,
+    which the command reports as usual.  Off the main thread signals cannot be handled, and
+    they never reach such a thread anyway."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: None)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def _edge_sets(name: str, props: dict, declared: dict[str, tuple[str, dict]]) -> list[str]:

@@ -5,6 +5,7 @@ and say which limit it met.  The slow query is a cross product of the open treeb
 (UD English GUM, dev split: about 790 million pairs)."""
 from __future__ import annotations
 
+import os
 import random
 import signal
 import subprocess
@@ -60,22 +61,71 @@ def test_ctrl_c_stops_a_running_query_within_a_second(corpus, seed):
     assert "Traceback" not in out + err
 
 
-def test_ctrl_c_during_an_import_leaves_the_corpus_as_it_was(tmp_path):
+def _paused_import(root: Path, step: str, prefix: str) -> subprocess.Popen:
+    """An import of the test split held at the commit step ``step`` (STRATA_PAUSE_AT)."""
+    env = {**os.environ, "STRATA_PAUSE_AT": step, "STRATA_PAUSE_SECONDS": "3"}
+    proc = subprocess.Popen([sys.executable, "-m", "engine.cli", "import", str(root), str(gum_file("test")),
+                             "--prefix", prefix], cwd=REPO, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            text=True, env=env)
+    seen = []
+    for line in proc.stderr:                     # wait until it says where it is held
+        seen.append(line)
+        if line.strip() == f"paused at {step}":
+            return proc
+    pytest.fail(f"the import never reached {step}: {''.join(seen)}")
+
+
+@pytest.fixture()
+def imported(tmp_path) -> Path:
     root = tmp_path / "c"
     assert run("init", str(root)).returncode == 0
     assert run("import", str(root), str(gum_file("dev"))).returncode == 0
-    before = Corpus.open(root).info()
-    proc = start("import", str(root), str(gum_file("test")), "--prefix", "b")
-    interrupt_after(proc, 1.2)
-    out, err = proc.communicate()
-    after = Corpus.open(root).info()
+    return root
+
+
+def test_ctrl_c_before_the_commit_leaves_the_corpus_as_it_was(imported):
+    before = Corpus.open(imported).info()
+    proc = _paused_import(imported, "staged", "b")
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130 and "Traceback" not in err
+    assert "interrupted; the corpus is unchanged" in err
+    assert Corpus.open(imported).info() == before
+    assert not list((imported / "staging").glob("*"))
+    assert run("import", str(imported), str(gum_file("test")), "--prefix", "c").returncode == 0
+
+
+def test_ctrl_c_inside_the_commit_is_held_until_the_import_is_whole(imported):
+    """Between the moves and the catalog a Ctrl-C is held: the import completes and every part
+    the catalog lists is on disk (before, a Ctrl-C just after the catalog's COMMIT deleted
+    parts the catalog already listed)."""
+    before = Corpus.open(imported).info()
+    proc = _paused_import(imported, "before-catalog", "b")
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 0 and "Traceback" not in err, err
+    after = Corpus.open(imported).info()
+    assert after["documents"] == before["documents"] + 30          # the test split's 30 documents
+    done = run("query", str(imported), "find t = b.token count")     # reads every new part
+    assert done.returncode == 0 and "Traceback" not in done.stderr
+    assert "27986" in done.stdout.replace(",", ""), done.stdout   # GUM test tokens, as published
+
+
+@pytest.mark.parametrize("seed", range(2))
+def test_ctrl_c_at_a_random_moment_of_an_import_is_all_or_nothing(imported, seed):
+    before = Corpus.open(imported).info()
+    proc = start("import", str(imported), str(gum_file("test")), "--prefix", "b")
+    time.sleep(random.Random(seed).uniform(0.2, 1.0))
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    after = Corpus.open(imported).info()
+    assert "Traceback" not in err
     if proc.returncode == 0:              # it had finished: then it is all there
-        assert after["documents"] > before["documents"]
+        assert after["documents"] == before["documents"] + 30
     else:
-        assert proc.returncode == 130 and "Traceback" not in err
+        assert proc.returncode == 130
         assert after == before
-        assert not list((root / "staging").glob("*"))
-    assert run("import", str(root), str(gum_file("test")), "--prefix", "c").returncode == 0
+        assert not list((imported / "staging").glob("*"))
 
 
 def test_a_time_limit_stops_the_query_with_exit_2(corpus):
