@@ -149,7 +149,7 @@ class Store:
     # -- opening -----------------------------------------------------------------
     @classmethod
     def create(cls, path: str | os.PathLike) -> "Store":
-        root = Path(path)
+        root = corpus_path(path)
         if (root / CATALOG_FILE).exists():
             raise StrataError(f"a corpus already exists at {root}")
         if root.exists() and any(root.iterdir()):
@@ -164,7 +164,7 @@ class Store:
 
     @classmethod
     def open(cls, path: str | os.PathLike) -> "Store":
-        root = Path(path)
+        root = corpus_path(path)
         if not (root / CATALOG_FILE).exists():
             raise StrataError(f"no corpus at {root} (make one with: strata init {root})")
         store = cls(root)
@@ -824,6 +824,29 @@ class Batch:
 
 
 # -- helpers ----------------------------------------------------------------------------
+#: characters DuckDB does not take literally in a file path: it reads "?" as the start of
+#: connection options (the catalog's log went to "c.wal?x"), turns "\\" into "/" (the
+#: catalog landed outside the named folder), and reads "*", "?", "[" and "]" in a Parquet
+#: path as a pattern (a folder "c[ab]x" would read "cax" and "cbx" instead of itself)
+PATH_CHARACTERS_REFUSED = {"?": "the start of connection options", "\\": "a folder separator, like /",
+                           "*": "a file pattern", "[": "a file pattern", "]": "a file pattern"}
+
+
+def corpus_path(path: str | os.PathLike) -> Path:
+    """The corpus folder as an absolute path, refused where DuckDB would read it otherwise.
+
+    Absolute, because DuckDB expands a leading "~" to the home folder and would take a
+    folder named "~" (or "s3:") for something else; refused, rather than escaped, because
+    DuckDB has no escape for these characters in a path."""
+    root = Path(os.path.abspath(os.fspath(path)))
+    for char, meaning in PATH_CHARACTERS_REFUSED.items():
+        if char in str(root):
+            raise StrataError(f"the corpus path {root} contains {char!r}, which the database engine "
+                              f"reads as {meaning}, not as part of a folder name",
+                              hint="choose a folder whose path has none of " + " ".join(PATH_CHARACTERS_REFUSED))
+    return root
+
+
 #: the named steps of a commit at which tests may kill the writer (STRATA_KILL_AT=step) or
 #: hold it for a while (STRATA_PAUSE_AT=step, STRATA_PAUSE_SECONDS, default 5)
 COMMIT_STEPS = ("staged", "before-move", "mid-move", "before-catalog", "after-catalog")
