@@ -93,7 +93,28 @@ def _breakers():
         lines.extend(block)
         return len(lines) - len(block), "used twice"
 
-    return [wrong_columns, bad_id, head_out_of_range, cycle, unbalanced_entity, bad_utf8, duplicate_sentence_id]
+    def id_beyond_64_bits(lines):         # 2^64 + 1: no int64 holds it (was an ArrowInvalid traceback)
+        i = _token_line(lines, 1, "3")
+        _set(lines, i, 0, str(2 ** 64 + 1))
+        return i, "20 digits; strata reads at most 18"
+
+    def range_beyond_64_bits(lines):
+        i = _token_line(lines, 1, "3")
+        lines.insert(i, "\t".join([f"3-{2 ** 70}"] + ["_"] * 9) + "\n")
+        return i, "22 digits"
+
+    def head_beyond_64_bits(lines):
+        i = _token_line(lines, 1, "2")
+        _set(lines, i, 6, "9" * 30)
+        return i, "HEAD 999999999999999999999999... has 30 digits"
+
+    def head_in_other_digits(lines):      # ARABIC-INDIC DIGIT THREE: a Unicode digit, not a number here
+        i = _token_line(lines, 1, "2")
+        _set(lines, i, 6, "\u0663")
+        return i, "is not a number"
+
+    return [wrong_columns, bad_id, head_out_of_range, cycle, unbalanced_entity, bad_utf8, duplicate_sentence_id,
+            id_beyond_64_bits, range_beyond_64_bits, head_beyond_64_bits, head_in_other_digits]
 
 
 def _write(path: Path, lines: list[str]) -> None:
@@ -206,3 +227,19 @@ def test_text_comment_that_disagrees_with_the_tokens_is_reported(tmp_path):
     assert f"text.conllu:{i + 1}:" in report.warnings[0]          # the line of the '# text' comment
     assert "differs from its tokens" in report.warnings[0]
     assert corpus.export("conllu") == "".join(lines)      # the comment itself is kept as written
+
+
+def test_a_line_of_33_mib_is_read_whole(tmp_path):
+    """The line reader's block is 16 MiB; a longer line makes it read the block again with
+    room for it (before: an error about a row straddling two blocks, with no line number)."""
+    lines = _head(2)
+    i = _token_line(lines, 1, "2")
+    form = "x" * (33 << 20)
+    _set(lines, i, 1, form)
+    lines = [l for l in lines if not l.startswith("# text")]      # the text comes from the forms
+    path = tmp_path / "long.conllu"
+    _write(path, lines)
+    corpus = Corpus.create(tmp_path / "c")
+    corpus.import_files([path], progress=False)
+    got = corpus.query('find w = word where length(w.form) > 1000000 show length(w.form) as n').table
+    assert got.column("n").to_pylist() == [len(form)]

@@ -54,6 +54,34 @@ def _np(a) -> np.ndarray:
     return a.to_numpy(zero_copy_only=False)
 
 
+#: the longest number read in an ID, a HEAD or a DEPS head: any 18 digits fit in int64
+MAX_DIGITS = 18
+
+
+def _is_number(a: pa.Array) -> np.ndarray:
+    """Which strings are a whole number strata reads: ASCII digits only (Unicode digits such
+    as "٣" pass ``utf8_is_digit`` but no integer cast) and at most :data:`MAX_DIGITS` of them."""
+    return _np(pc.and_(pc.and_(pc.utf8_is_digit(a), pc.string_is_ascii(a)),
+                       pc.less_equal(pc.utf8_length(a), MAX_DIGITS)))
+
+
+def _too_long_id(text: str | None) -> str | None:
+    """The message for an ID holding a number too long to read (alone, in a range, or in an
+    empty node's ID), or None."""
+    for piece in (text or "").replace(".", "-").split("-"):
+        if piece.isascii() and piece.isdigit() and len(piece) > MAX_DIGITS:
+            shown = text if len(text) <= 48 else text[:48] + "..."
+            return f"ID {shown!r} holds a number of {len(piece)} digits; strata reads at most {MAX_DIGITS}"
+    return None
+
+
+def _number_problem(text: str | None, what: str) -> str | None:
+    """The message for a number too long to read, or None when ``text`` is not one."""
+    if text and text.isascii() and text.isdigit() and len(text) > MAX_DIGITS:
+        return f"{what} {text[:24]}{'...' if len(text) > 24 else ''} has {len(text)} digits; strata reads at most {MAX_DIGITS}"
+    return None
+
+
 def _seg_cumsum(values: np.ndarray, starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
     """Inclusive cumulative sum restarted at each segment start."""
     cs = np.cumsum(values)
@@ -249,17 +277,28 @@ class ConlluImporter:
         self._write()
 
     def _lines(self, data: bytes, first_line: int) -> pa.Array:
-        try:
-            table = pa_csv.read_csv(
-                pa.BufferReader(data), read_options=pa_csv.ReadOptions(column_names=["line"], block_size=1 << 24),
-                parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
-                                                  ignore_empty_lines=False, newlines_in_values=False),
-                convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False,
-                                                      quoted_strings_can_be_null=False))
-        except pa.ArrowInvalid as e:
-            if "utf" in str(e).lower():
-                _raise_bad_utf8(data, first_line, self.path)
-            raise StrataError(f"cannot read: {e}", file=str(self.path)) from None
+        """The block's lines as one string array.  The reader's block (16 MiB) must hold the
+        longest line: a longer one makes it read again with a block of the whole data, up to
+        the reader's own limit of 2 GiB (a line beyond it is refused with its number)."""
+        block_size = 1 << 24
+        while True:
+            try:
+                table = pa_csv.read_csv(
+                    pa.BufferReader(data), read_options=pa_csv.ReadOptions(column_names=["line"], block_size=block_size),
+                    parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
+                                                      ignore_empty_lines=False, newlines_in_values=False),
+                    convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False,
+                                                          quoted_strings_can_be_null=False))
+                break
+            except pa.ArrowInvalid as e:
+                if "utf" in str(e).lower():
+                    _raise_bad_utf8(data, first_line, self.path)
+                if "straddl" in str(e).lower() and block_size < MAX_LINE_BYTES and len(data) >= block_size:
+                    block_size = min(len(data) + 1, MAX_LINE_BYTES)
+                    continue
+                if "straddl" in str(e).lower():
+                    _raise_long_line(data, first_line, self.path)
+                raise StrataError(f"cannot read: {e}", file=str(self.path)) from None
         line = table.column("line").combine_chunks()
         if len(line) and pc.any(pc.ends_with(line, "\r")).as_py():
             line = pc.utf8_rtrim(line, characters="\r")
@@ -282,7 +321,7 @@ class ConlluImporter:
         self._flat, self._rowmap = flat, np.arange(m, dtype=np.int64)
         self.cols, self.n, self.s, self.d = cols, n, s, d
         cid = cols["cid"]
-        is_w = _np(pc.utf8_is_digit(cid))
+        is_w = _is_number(cid)
         dash = _np(pc.match_substring(cid, "-"))
         dot = _np(pc.match_substring(cid, "."))
         is_m = dash & ~dot & ~is_w
@@ -298,14 +337,14 @@ class ConlluImporter:
             if mask.any():
                 pieces = pc.split_pattern(cid.filter(pa.array(mask)), sep, max_splits=1)
                 left, right = pc.list_element(pieces, 0), pc.list_element(pieces, 1)
-                ok = _np(pc.and_(pc.utf8_is_digit(left), pc.utf8_is_digit(right)))
+                ok = _is_number(left) & _is_number(right)
                 rows = np.flatnonzero(mask)
                 kind_bad[rows[~ok]] = True
                 mask[rows[~ok]] = False
                 a[rows[ok]] = _np(pc.cast(left.filter(pa.array(ok)), pa.int64()))
                 b[rows[ok]] = _np(pc.cast(right.filter(pa.array(ok)), pa.int64()))
-        problems.add(kind_bad, n, s, lambda r: f"bad ID {cid[r].as_py()!r}: expected a number, a range like 3-4 or "
-                                               "an empty node like 3.1")
+        problems.add(kind_bad, n, s, lambda r: _too_long_id(cid[r].as_py()) or
+                     f"bad ID {cid[r].as_py()!r}: expected a number, a range like 3-4 or an empty node like 3.1")
         self.is_w, self.is_m, self.is_e, self.cid_i, self.a, self.b = is_w, is_m, is_e, cid_i, a, b
         # sentence segments of token rows
         start_flag = np.r_[True, s[1:] != s[:-1]] if m else np.zeros(0, bool)
@@ -319,7 +358,7 @@ class ConlluImporter:
         # heads
         head = cols["head"]
         self.head_blank = _np(pc.equal(head, "_"))
-        head_digit = _np(pc.utf8_is_digit(head))
+        head_digit = _is_number(head)
         self.head_i = np.full(m, -1, np.int64)
         if head_digit.any():
             self.head_i[head_digit] = _np(pc.cast(head.filter(pa.array(head_digit)), pa.int64()))
@@ -388,7 +427,7 @@ class ConlluImporter:
         head = self.cols["head"]
         hd = self.head_i
         problems.add(w & ~self.head_blank & ~self.head_digit, n, s,
-                     lambda r: f"HEAD {head[r].as_py()!r} is not a number")
+                     lambda r: _number_problem(head[r].as_py(), "HEAD") or f"HEAD {head[r].as_py()!r} is not a number")
         problems.add(w & (hd > nwords), n, s,
                      lambda r: f"HEAD {hd[r]} is out of range: the sentence has {nwords[r]} words")
         problems.add(w & (hd == self.cid_i), n, s, lambda r: f"word {self.cid_i[r]} is its own head")
@@ -439,7 +478,7 @@ class ConlluImporter:
         hr = pc.split_pattern(padded, ":", max_splits=1)
         h = pc.list_element(hr, 0)
         rel = pc.list_element(hr, 1)
-        h_digit = _np(pc.utf8_is_digit(h))
+        h_digit = _is_number(h)
         h_int = np.full(len(flat), -1, np.int64)
         if h_digit.any():
             h_int[h_digit] = _np(pc.cast(h.filter(pa.array(h_digit)), pa.int64()))
@@ -1137,6 +1176,22 @@ def _blocks(path: Path, block_bytes: int = BLOCK_BYTES) -> Iterator[tuple[bytes,
             block, carry = data[:cut + 1], data[cut + 1:]
             yield block, line
             line += block.count(b"\n")
+
+
+#: the longest line the reader takes (its block size is a signed 32-bit number)
+MAX_LINE_BYTES = (1 << 31) - 1
+
+
+def _raise_long_line(data: bytes, first_line: int, path: Path) -> None:
+    start, number = 0, first_line
+    while start < len(data):
+        end = data.find(b"\n", start)
+        end = len(data) if end < 0 else end
+        if end - start >= MAX_LINE_BYTES:
+            raise StrataError(f"this line is {end - start:,} bytes long; strata reads lines of up to "
+                              f"{MAX_LINE_BYTES:,} bytes (2 GiB)", file=str(path), line=number)
+        start, number = end + 1, number + 1
+    raise StrataError("a line is longer than the reader can take", file=str(path))
 
 
 def _raise_bad_utf8(data: bytes, first_line: int, path: Path) -> None:
