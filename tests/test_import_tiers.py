@@ -174,8 +174,9 @@ def test_overlap_is_per_speaker_and_reported_at_the_later_row(tmp_path):
 
 
 def test_rows_the_column_reader_refuses_are_read_by_the_row_reader(tmp_path):
-    """Quotes (CSV rules: the ``csv`` module of the standard library) and spaces around numbers
-    (Python's ``float``) are accepted; the stored rows equal those of the clean table."""
+    """CSV quotes (RFC 4180, as the ``csv`` module of the standard library reads them) and
+    spaces around numbers (Python's ``float``) are accepted; the stored rows equal those of the
+    clean table."""
     corpus, name, _ = _first_doc(tmp_path)
     content, _ = _tiers(corpus, name, 12)
     clean = tmp_path / "clean.tiers.tsv"
@@ -184,10 +185,13 @@ def test_rows_the_column_reader_refuses_are_read_by_the_row_reader(tmp_path):
     other = Corpus.create(tmp_path / "other")
     other.import_files([tmp_path / "one.conllu"], progress=False)
     lines = content.splitlines()
-    odd = [lines[0]] + [line.replace("\t", "\t ", 3).rsplit("\t", 1)[0] + '\t"' + line.rsplit("\t", 1)[1] + '"'
-                        for line in lines[1:]]
-    messy = tmp_path / "messy.tiers.tsv"
-    messy.write_text("\n".join(odd) + "\n", encoding="utf-8")
+    odd = [lines[0].replace("\t", ",")]
+    for line in lines[1:]:
+        fields = line.split("\t")
+        fields = [fields[0]] + [" " + f for f in fields[1:-1]] + ['"' + fields[-1].replace('"', '""') + '"']
+        odd.append(",".join(fields))
+    messy = tmp_path / "messy.tiers.csv"
+    messy.write_text("\r\n".join(odd) + "\r\n", encoding="utf-8")
     other.import_files([messy], progress=False)
     query = 'SELECT label, t_start, t_end, start, "end" FROM {} ORDER BY ord'
     for layer in ("spoken", "phones", "pauses"):

@@ -50,8 +50,39 @@ def sha256_of(path: Path) -> str:
     return h.hexdigest()
 
 
-def read_lines(path: Path, on_bytes=None) -> Iterator[tuple[int, str]]:
-    """``(line_number, text)`` pairs without the line end; invalid UTF-8 is a StrataError.
+#: the UTF-8 byte-order mark some editors put at the start of a file
+BOM = b"\xef\xbb\xbf"
+
+
+def without_bom(raw: bytes) -> bytes:
+    """``raw`` without a UTF-8 byte-order mark at its start.
+
+    Every reader takes the files it reads through this (or :func:`read_lines`): a mark at the
+    start is skipped, as Python's "utf-8-sig" codec does; one anywhere else is a character of
+    the text (U+FEFF), kept as written."""
+    return raw[len(BOM):] if raw.startswith(BOM) else raw
+
+
+def refuse_nul(text: str | bytes, path: Path, line: int) -> None:
+    """A NUL character is not text (POSIX defines a text file as one without it) and would be
+    cut short by tools that read the corpus later: refused with its line and byte."""
+    at = text.find("\x00" if isinstance(text, str) else b"\x00")
+    if at >= 0:
+        unit = "character" if isinstance(text, str) else "byte"
+        raise StrataError(f"a NUL character (U+0000) at {unit} {at + 1} of the line; annotation files are text",
+                          file=str(path), line=line)
+
+
+def refuse_nul_in(raw: bytes, path: Path, first_line: int = 1) -> None:
+    """:func:`refuse_nul` for a whole block of bytes whose first line is ``first_line``."""
+    at = raw.find(b"\x00")
+    if at >= 0:
+        refuse_nul(raw[raw.rfind(b"\n", 0, at) + 1:at + 1], path, first_line + raw.count(b"\n", 0, at))
+
+
+def read_lines(path: Path, on_bytes=None, keep_ends: bool = False) -> Iterator[tuple[int, str]]:
+    """``(line_number, text)`` pairs without the line end (with it: ``keep_ends``); invalid UTF-8 and NUL characters
+    are a StrataError naming the line; a byte-order mark at the start is skipped.
 
     Reads in binary and decodes line by line so the error names the line, and memory
     stays bounded whatever the file size.
@@ -64,11 +95,17 @@ def read_lines(path: Path, on_bytes=None) -> Iterator[tuple[int, str]]:
         for number, raw in enumerate(f, 1):
             if on_bytes is not None:
                 on_bytes(len(raw))
+            if number == 1:
+                raw = without_bom(raw)
             try:
                 text = raw.decode("utf-8")
             except UnicodeDecodeError as e:
                 raise StrataError(f"invalid UTF-8 at byte {e.start} of the line", file=str(path),
                                   line=number) from None
+            refuse_nul(text, path, number)
+            if keep_ends:
+                yield number, text
+                continue
             if text.endswith("\n"):
                 text = text[:-1]
             if text.endswith("\r"):

@@ -29,7 +29,7 @@ from engine.align.normalise import BRACKET_ESCAPES
 from engine.align.report import check_alignment
 from engine.align.sequence import GOOD, align_forms, align_segments
 from engine.errors import StrataError
-from engine.importers.base import ImportOptions, ImportReport, sha256_of
+from engine.importers.base import ImportOptions, ImportReport, refuse_nul_in, sha256_of, without_bom
 from engine.importers.stored import doc_has_rows
 from engine.store import Batch, DocInfo
 
@@ -177,6 +177,8 @@ def _read_text(path: Path) -> tuple[bytes, str]:
         raw = path.read_bytes()
     except OSError as e:
         raise StrataError(f"cannot read: {e.strerror}", file=str(path)) from None
+    raw = without_bom(raw)
+    refuse_nul_in(raw, path)
     try:
         return raw, raw.decode("utf-8")
     except UnicodeDecodeError as e:

@@ -30,7 +30,7 @@ import pyarrow.csv as pa_csv
 import pyarrow.parquet as pq
 
 from engine.errors import StrataError
-from engine.importers.base import ImportOptions, ImportReport, sha256_of
+from engine.importers.base import ImportOptions, ImportReport, refuse_nul_in, sha256_of, without_bom
 from engine.importers.treeorder import TreeError, tree_order
 from engine.progress import byte_progress
 from engine.stats import part_stats
@@ -42,6 +42,7 @@ BLOCK_BYTES = 64 << 20
 PART_ROWS = 300_000
 COLUMNS = ["cid", "form", "lemma", "upos", "xpos", "feats", "head", "deprel", "deps", "misc"]
 _SHARED_COLUMNS = ("cid", "form", "head", "deps", "misc")
+_FIELD_NAMES = ["ID", "FORM", "LEMMA", "UPOS", "XPOS", "FEATS", "HEAD", "DEPREL", "DEPS", "MISC"]
 _RESERVED = set(ANCHOR_COLUMNS) | {"ord", "sent_id", "text", "comments"}
 
 
@@ -280,6 +281,9 @@ class ConlluImporter:
         """The block's lines as one string array.  The reader's block (16 MiB) must hold the
         longest line: a longer one makes it read again with a block of the whole data, up to
         the reader's own limit of 2 GiB (a line beyond it is refused with its number)."""
+        if first_line == 1:
+            data = without_bom(data)
+        refuse_nul_in(data, self.path, first_line)
         block_size = 1 << 24
         while True:
             try:
@@ -315,6 +319,15 @@ class ConlluImporter:
             parts, n, s, d = parts.filter(pa.array(good)), n[good], s[good], d[good]
         flat = parts.flatten()
         m = len(n)
+        empty = np.flatnonzero(_np(pc.equal(flat, "")))
+        if len(empty):            # the standard: "Fields must not be empty" (underscore for none)
+            row_bad = np.zeros(m, bool)
+            row_bad[empty // 10] = True
+            first_empty = {}
+            for k in empty[::-1]:
+                first_empty[int(k) // 10] = int(k) % 10
+            problems.add(row_bad, n, s, lambda r: f"the {_FIELD_NAMES[first_empty[int(r)]]} field is empty; CoNLL-U "
+                                                  "writes _ where a value is missing (fields must not be empty)")
         # the columns every stage needs, for all rows; the others are taken once, for the rows written
         cols = {name: flat.take(pa.array(np.arange(COLUMNS.index(name), 10 * m, 10, dtype=np.int64)))
                 for name in _SHARED_COLUMNS}
@@ -384,6 +397,10 @@ class ConlluImporter:
         seen_doc = _seg_cumsum(is_newdoc.astype(np.int64), first, lens) > 0 if len(s) else is_newdoc
         ended = _seg_cumsum(ends.astype(np.int64), first, lens) > 0 if len(s) else ends
         self.com = _Comments(n, s, d, lines, key, value, seen_doc & ~ended & ~is_newdoc)
+        for name, advice in (("newdoc id", "name the document, or write '# newdoc' alone to have a name made from the file's "
+                                            "name"), ("sent_id", "give the sentence an id, or leave the line out")):
+            problems.add(_np(pc.and_(pc.equal(key, name), pc.equal(value, ""))), n, s,
+                         f"'# {name} =' has no value: {advice}")
         # comments after the first token line of their sentence, and comments with no sentence
         tok_s, tok_first_n = self.s[self.seg_starts], self.n[self.seg_starts]
         at = np.searchsorted(tok_s, s)
@@ -1194,6 +1211,20 @@ def _raise_long_line(data: bytes, first_line: int, path: Path) -> None:
     raise StrataError("a line is longer than the reader can take", file=str(path))
 
 
+def _refuse_empty(path: Path) -> None:
+    """A file with nothing but blank lines (or nothing at all) is refused: importing it would
+    record an import that added nothing, which is more often a wrong file than an intent."""
+    try:
+        f = open(path, "rb")
+    except OSError:
+        return                       # the import itself says why it cannot be read
+    with f:
+        for line in f:
+            if line.strip(b" \t\r\n\xef\xbb\xbf"):
+                return
+    raise StrataError("the file is empty: a CoNLL-U file holds at least one sentence", file=str(path), line=1)
+
+
 def _raise_bad_utf8(data: bytes, first_line: int, path: Path) -> None:
     for number, raw in enumerate(data.split(b"\n"), first_line):
         try:
@@ -1210,6 +1241,8 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     the result is the same as this sequential loop's.
     """
     from engine.importers import conllu_parallel
+    for path in paths:
+        _refuse_empty(Path(path))
     if conllu_parallel.worthwhile(paths, options):
         return conllu_parallel.import_files(batch, [Path(p) for p in paths], options)
     imp = ConlluImporter(batch, options)

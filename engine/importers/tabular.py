@@ -31,14 +31,48 @@ def delimiter_for(path: Path) -> str:
     return "," if path.name.lower().endswith(".csv") else "\t"
 
 
+def records(path: Path) -> Iterator[tuple[int, list[str]]]:
+    """Each record that is not blank, as ``(first line, fields)``.
+
+    Tab-separated files have no quoting: a line is split at its tabs and every byte of a
+    field arrives as written (a quote is a character like any other).  Comma-separated files
+    follow RFC 4180: a field in double quotes may hold commas, line breaks and doubled quotes
+    ("" for one); a quote inside a field that does not start with one is taken as written, as
+    the common readers do.  A quoted field that is never closed is refused at the line it
+    opened on.
+    """
+    if delimiter_for(path) == "\t":
+        for number, text in read_lines(path):
+            if text.strip():
+                yield number, text.split("\t")
+        return
+    reader = csv.reader((text for _, text in read_lines(path, keep_ends=True)), strict=True)
+    first = 1
+    while True:
+        try:
+            fields = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as e:
+            if "end of data" in str(e) or reader.line_num > first:
+                raise StrataError("a quoted field opened on this line is never closed (RFC 4180: a field in "
+                                  "double quotes ends with a quote; a quote inside it is written twice)",
+                                  file=str(path), line=first) from None
+            raise StrataError(f"not CSV as RFC 4180 writes it: {e} (a field in double quotes ends with a "
+                              "quote followed by a comma or the end of the line)", file=str(path), line=first) from None
+        if len(fields) > 1 or (fields and fields[0].strip()):
+            yield first, fields
+        first = reader.line_num + 1
+
+
 def _header(path: Path, required: list[str], allowed_reserved: set[str],
-            numbered: Iterator[tuple[int, str]]) -> tuple[list[str], int]:
-    """The checked header row and its line number (the first line that is not blank)."""
+            numbered: Iterator[tuple[int, list[str]]]) -> tuple[list[str], int]:
+    """The checked header row and its line number (the first record that is not blank)."""
     first = next(numbered, None)
     if first is None:
         raise StrataError("the file is empty: expected a header row with " + ", ".join(required), file=str(path),
                           line=1)
-    header = [h.strip() for h in next(csv.reader([first[1]], delimiter=delimiter_for(path)))]
+    header = [h.strip() for h in first[1]]
     missing = [c for c in required if c not in header]
     if missing:
         raise StrataError(f"the header lacks the column(s) {', '.join(missing)} "
@@ -57,13 +91,11 @@ def _header(path: Path, required: list[str], allowed_reserved: set[str],
 def read_table(path: Path, required: list[str], allowed_reserved: set[str]
                ) -> tuple[list[str], Iterator[tuple[int, dict[str, str]]]]:
     """Header and ``(line, row)`` pairs; a missing or reserved column is a StrataError at line 1."""
-    numbered = ((n, t) for n, t in read_lines(path) if t.strip())
+    numbered = records(path)
     header, _ = _header(path, required, allowed_reserved, numbered)
-    delim = delimiter_for(path)
 
     def rows() -> Iterator[tuple[int, dict[str, str]]]:
-        for number, text in numbered:
-            values = next(csv.reader([text], delimiter=delim))
+        for number, values in numbered:
             if len(values) != len(header):
                 raise StrataError(f"this row has {len(values)} fields, the header has {len(header)}",
                                   file=str(path), line=number)
@@ -85,7 +117,7 @@ class Columns:
 
 def read_columns(path: Path, required: list[str], allowed_reserved: set[str]) -> Columns:
     """The table column-wise; any row the fast reader cannot vouch for goes through :func:`read_table`."""
-    numbered = ((n, t) for n, t in read_lines(path) if t.strip())
+    numbered = records(path)
     header, header_line = _header(path, required, allowed_reserved, numbered)
     numbered.close()
     fast = _read_fast(path, header, header_line)
@@ -112,8 +144,9 @@ def _read_fast(path: Path, header: list[str], header_line: int) -> Columns | Non
         data = path.read_bytes()
     except OSError:
         return None
-    # the row reader ends lines at "\n" only and interprets quotes: leave those files to it
-    if b'"' in data or data.count(b"\r") != data.count(b"\r\n"):
+    # the row reader ends lines at "\n" only, reads quotes in CSV and refuses NUL: leave those
+    # files to it
+    if (b'"' in data and delimiter_for(path) == ",") or data.count(b"\r") != data.count(b"\r\n") or b"\x00" in data:
         return None
     buf = np.frombuffer(data, dtype=np.uint8)
     ends = np.flatnonzero(buf == 10)

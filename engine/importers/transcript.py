@@ -11,7 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from engine.errors import StrataError
-from engine.importers.base import ImportOptions, ImportReport, sha256_of
+from engine.importers.base import ImportOptions, ImportReport, refuse_nul_in, sha256_of, without_bom
 from engine.store import Batch
 
 FORMAT = "transcript"
@@ -22,6 +22,8 @@ def read_text(path: Path) -> str:
         raw = path.read_bytes()
     except OSError as e:
         raise StrataError(f"cannot read: {e.strerror}", file=str(path)) from None
+    raw = without_bom(raw)
+    refuse_nul_in(raw, path)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as e:
@@ -30,8 +32,6 @@ def read_text(path: Path) -> str:
     text = text.replace("\r\n", "\n")
     if text.endswith("\n"):
         text = text[:-1]
-    if text.startswith("\ufeff"):
-        text = text[1:]
     return text
 
 
