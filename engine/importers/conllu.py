@@ -553,7 +553,7 @@ class ConlluImporter:
     def _drop_bad(self, problems: _Problems) -> bool:
         """Without --lenient the first problem is an error; with it, bad sentences are skipped."""
         if problems.items:
-            problems.items.sort()
+            problems.items.sort(key=lambda p: p[:2])     # by place; at one place the first check found
             if not self.opt.lenient:
                 line, _, message = problems.items[0]
                 raise StrataError(message, file=str(self.path), line=line)
