@@ -150,13 +150,52 @@ def run_query(con: duckdb.DuckDBPyConnection, catalog: Catalog, text: str, *,
                           f"({_first_line(err)})",
                           hint="raise the limit with --memory (e.g. --memory 8GB), or narrow the query") from None
     except duckdb.Error as err:   # e.g. a value that does not cast; never a traceback
+        line, column = db_error_place(text, str(err))
         raise StrataError(f"the query could not run on this corpus: {_first_line(err)}", query=text,
-                          line=1, column=1) from None
+                          line=line, column=column,
+                          hint=None if column else "(the database did not say where; the caret is at the start)"
+                          ) from None
     table = table.rename_columns(compiled.columns)
     output = compiled.ast.output
     shown = tuple(i.label for i in output.items) if isinstance(output, Show) else ()
     notes = _notes(compiled, table, limit) + value_notes(con, catalog, compiled.state.checked)
     return Hits(table, compiled.kind, text, compiled.sql, tuple(rounds), shown, notes)
+
+
+_DB_COLUMN = re.compile(r'column "?([A-Za-z_][\w.]*)"?')
+_DB_VALUE = re.compile(r"'([^']{1,200})'|\"([^\"]{1,200})\"")
+
+
+def db_error_place(text: str, message: str) -> tuple[int, int | None]:
+    r"""``(line, column)`` (1-based) of the part of the query a database error is about, where
+    the message names it: a column ("... from source column feats" -> the first ``.feats``),
+    or a quoted value that the query also holds.  ``(1, None)`` when it cannot be told.
+
+    >>> db_error_place('find w = word where w.feats = "x"', "Could not convert ... source column feats")
+    (1, 21)
+    >>> db_error_place('find w = word\nwhere w.form ~ "(("', "Invalid Input Error: ... '((' ...")
+    (2, 16)
+    >>> db_error_place("find w = word count", "Out of Range Error")
+    (1, None)
+    """
+    offset = None
+    for m in _DB_COLUMN.finditer(message):
+        name = m.group(1).split(".")[-1]
+        found = re.search(r"\b([A-Za-z_][\w\-]*)\.(?:[\w\-]+\.)*" + re.escape(name) + r"\b", text)
+        if found:
+            offset = found.start()
+            break
+    if offset is None:
+        for m in _DB_VALUE.finditer(message):
+            value = m.group(1) or m.group(2)
+            at = text.find(f'"{value}"')
+            if at >= 0:
+                offset = at
+                break
+    if offset is None:
+        return 1, None
+    line = text.count("\n", 0, offset) + 1
+    return line, offset - (text.rfind("\n", 0, offset) + 1) + 1
 
 
 def _notes(compiled: CompiledQuery, table: pa.Table, limit: int | None) -> tuple[str, ...]:

@@ -362,6 +362,9 @@ class _Checker:
             if "str" in kinds and kinds & NUMERIC:
                 self.fail(f"{_written(left)} and {_written(right)} are not comparable: one is text, the other "
                           "a number", pos)
+            if "bool" in kinds and len(kinds) > 1:
+                self.fail(f"{_written(left)} and {_written(right)} are not comparable: one is true or false, "
+                          "the other is not", pos)
             if ("time" in kinds and "length" in kinds):
                 self.fail("a time is compared with a distance", pos)
         if op in ORDERING and "bool" in (_type(left), _type(right)):

@@ -95,8 +95,8 @@ def _output(ck: "_Checker", out: ast.Output | None, scope: dict[str, LayerInfo])
     labels = [i.label for i in per] + [i.label for i in items]
     twice = next((x for x in labels if labels.count(x) > 1), None)
     if twice is not None:
-        ck.fail(f"two output columns are called {twice!r}", [i.call.pos for i in items if i.label == twice][-1],
-                "name one of them with `as`")
+        places = [i.expr.pos for i in per if i.label == twice] + [i.call.pos for i in items if i.label == twice]
+        ck.fail(f"two output columns are called {twice!r}", places[-1], "name one of them with `as`")
     _check_rate(ck, items, per)
     if having is not None:
         _check_having(ck, having, per, out.having_pos)
