@@ -13,6 +13,9 @@
   must equal the word count of one committed state.
 * **interrupts**: SIGINT at random moments of a slow query (``--interrupts`` times): exit 130
   within a second, one line on stderr, no traceback.
+* **fuzz**: ``--fuzz N`` queries from the grammar-aware fuzzer (:mod:`benchmarks.query_fuzz`):
+  every one must end in a result or an error that shows its place.  Given alone, ``--fuzz``
+  runs only this campaign: ``python -m benchmarks.reliability --fuzz 100000``.
 
 The inputs are the open treebank's two splits (UD English GUM) read in place.  Prints one line
 per check and a summary; exit 1 when anything failed.
@@ -171,18 +174,68 @@ def interrupt_checks(work: Path, times: int, rng: random.Random) -> tuple[list[s
     return failures, took
 
 
+def fuzz_checks(work: Path, times: int, seed: int) -> tuple[list[str], dict[str, int]]:
+    """``times`` fuzzed queries against the fuzzing corpus; a defect is any other outcome than a
+    result or an error with its place."""
+    from collections import Counter
+
+    from hypothesis import HealthCheck, Phase, given, settings
+    from hypothesis import seed as hypothesis_seed
+    from hypothesis import strategies as st
+
+    from benchmarks.query_fuzz import Vocabulary, any_query, fuzz_corpus, outcome
+    (work / "fuzz").mkdir()
+    corpus = fuzz_corpus(work / "fuzz", GUM / "en_gum-ud-dev.conllu")
+    vocab = Vocabulary.of(corpus.store)
+    counts: Counter = Counter()
+    failures: list[str] = []
+    started = time.monotonic()
+
+    @hypothesis_seed(seed)
+    @settings(max_examples=times, deadline=None, database=None, phases=[Phase.generate],
+              suppress_health_check=list(HealthCheck))
+    @given(st.data())
+    def one(data) -> None:
+        text = data.draw(any_query(vocab))
+        got = outcome(corpus, text, timeout=3)
+        counts[got.kind] += 1
+        counts["limit"] += got.detail == "limit"
+        if got.kind == "defect" and len(failures) < 50:
+            failures.append(f"fuzz: {text!r}: {got.detail[-400:]}")
+        done = sum(counts[k] for k in ("result", "clean error", "defect"))
+        if done % 5000 == 0:
+            print(f"fuzz: {done} queries, {counts['defect']} defects, {time.monotonic() - started:.0f} s", flush=True)
+    one()
+    print(f"fuzz: {sum(counts[k] for k in ('result', 'clean error', 'defect'))} queries: {counts['result']} results, "
+          f"{counts['clean error']} clean errors ({counts['limit']} of them a time or memory limit), "
+          f"{counts['defect']} defects; {time.monotonic() - started:.0f} s")
+    return failures, dict(counts)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--kill", type=int, default=20)
-    ap.add_argument("--races", type=int, default=20)
-    ap.add_argument("--readers", type=int, default=4)
-    ap.add_argument("--imports", type=int, default=10)
-    ap.add_argument("--interrupts", type=int, default=20)
+    ap.add_argument("--kill", type=int)
+    ap.add_argument("--races", type=int)
+    ap.add_argument("--readers", type=int)
+    ap.add_argument("--imports", type=int)
+    ap.add_argument("--interrupts", type=int)
+    ap.add_argument("--fuzz", type=int, default=0)
     ap.add_argument("--seed", type=int, default=1)
     args = ap.parse_args(argv)
     if not GUM.exists():
         print(f"the treebank is not at {GUM}", file=sys.stderr)
         return 2
+    others = ("kill", "races", "readers", "imports", "interrupts")
+    only_fuzz = args.fuzz and all(getattr(args, k) is None for k in others)
+    for key, default in zip(others, (20, 20, 4, 10, 20)):
+        if getattr(args, key) is None:
+            setattr(args, key, 0 if only_fuzz else default)
+    if only_fuzz:
+        with tempfile.TemporaryDirectory(prefix="strata-fuzz-") as tmp:
+            failures, _ = fuzz_checks(Path(tmp), args.fuzz, args.seed)
+        for f in failures:
+            print("FAILED:", f)
+        return 1 if failures else 0
     started = time.monotonic()
     with tempfile.TemporaryDirectory(prefix="strata-reliability-") as tmp:
         work = Path(tmp)
@@ -190,7 +243,8 @@ def main(argv: list[str] | None = None) -> int:
         race_failures, outcomes = race_checks(work, args.races)
         reader_failures, answers = reader_checks(work, args.readers, args.imports)
         interrupt_failures, took = interrupt_checks(work, args.interrupts, random.Random(args.seed))
-    failures += race_failures + reader_failures + interrupt_failures
+        fuzz_failures = fuzz_checks(work, args.fuzz, args.seed)[0] if args.fuzz else []
+    failures += race_failures + reader_failures + interrupt_failures + fuzz_failures
     print(f"summary: {args.kill} random kills + {len(__import__('engine.store').store.COMMIT_STEPS)} named steps, "
           f"{args.races} races ({outcomes['one refused']} one refused, {outcomes['both ran']} both ran), "
           f"{args.readers} readers x {args.imports} imports ({answers} answers), {args.interrupts} interrupts "
