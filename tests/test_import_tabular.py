@@ -142,3 +142,16 @@ def test_finer_than_a_microsecond_rounds_half_to_even():
 def test_column_times_refuse_what_the_row_reader_must_judge(cell):
     import pyarrow as pa
     assert times_fast(pa.array([cell]), "s") is None
+
+
+@pytest.mark.parametrize("name, quoted", [("a.tsv", False), ("a.csv", False), ("a.csv", True)])
+def test_a_field_of_three_mib_is_read_whole(tmp_path, name, quoted):
+    """Longer than pyarrow's default block (1 MiB) and the csv module's default field limit
+    (128 KiB, from the standard library's documentation of csv.field_size_limit)."""
+    label = "x" * (3 << 20)
+    delim = "\t" if name.endswith(".tsv") else ","
+    path = tmp_path / name
+    path.write_text(delim.join(HEADER) + "\n" + delim.join(["d", "0", "1", f'"{label}"' if quoted else label]) + "\n",
+                    encoding="utf-8")
+    cols = read_columns(path, HEADER, {"doc", "start", "end"})
+    assert cols.table.column("label").to_pylist() == [label] and cols.lines.tolist() == [2]

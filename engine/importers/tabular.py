@@ -27,6 +27,10 @@ from engine.store import ANCHOR_COLUMNS, TREE_COLUMNS
 RESERVED = set(ANCHOR_COLUMNS) | set(TREE_COLUMNS) | {"ord", "align", "align_score"}
 
 
+#: the longest field read: the reader's limit of 2 GiB lines (csv's own default is 128 KiB)
+MAX_FIELD_CHARS = (1 << 31) - 1
+
+
 def delimiter_for(path: Path) -> str:
     return "," if path.name.lower().endswith(".csv") else "\t"
 
@@ -46,6 +50,7 @@ def records(path: Path) -> Iterator[tuple[int, list[str]]]:
             if text.strip():
                 yield number, text.split("\t")
         return
+    csv.field_size_limit(MAX_FIELD_CHARS)       # the module's default refuses fields over 128 KiB
     reader = csv.reader((text for _, text in read_lines(path, keep_ends=True)), strict=True)
     first = 1
     while True:
@@ -167,7 +172,8 @@ def _read_fast(path: Path, header: list[str], header_line: int) -> Columns | Non
     try:
         table = pacsv.read_csv(
             pa.py_buffer(body),
-            read_options=pacsv.ReadOptions(column_names=names, use_threads=True),
+            read_options=pacsv.ReadOptions(column_names=names, use_threads=True,    # a block holds the longest line
+                                           block_size=int(min(max(1 << 20, int(length.max()) + 2), MAX_FIELD_CHARS))),
             parse_options=pacsv.ParseOptions(delimiter=delimiter_for(path), quote_char=False,
                                              newlines_in_values=False, ignore_empty_lines=True),
             convert_options=pacsv.ConvertOptions(column_types={n: pa.string() for n in names},
