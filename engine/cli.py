@@ -88,17 +88,22 @@ def import_(
     layer: Optional[str] = typer.Option(None, "--layer", help="layer name (span tables, trees)"),
     anchor: Optional[str] = typer.Option(None, "--anchor", help="span tables: chars | tokens:LAYER | time"),
     time_unit: str = typer.Option("s", "--time-unit", help="tiers and spans: s or ms"),
+    words_tier: Optional[str] = typer.Option(None, "--words-tier",
+                                             help="time tiers: the tier of the words, or '* - words' for one "
+                                                  "per speaker (default: the tier whose labels match the text best)"),
     accept_poor_alignment: bool = typer.Option(False, "--accept-poor-alignment",
                                                help="keep a layer that aligns below the threshold"),
     wait: float = typer.Option(0.0, "--wait", help="seconds to wait while another process writes the corpus"),
 ) -> None:
     """Import annotation files into a corpus (all or nothing)."""
     extra = {k: v for k, v in {"doc": doc, "layer": layer, "anchor": anchor, "time_unit": time_unit,
-                               "accept_poor_alignment": accept_poor_alignment}.items()
+                               "words_tier": words_tier, "accept_poor_alignment": accept_poor_alignment}.items()
              if v not in (None, False, "s")}
     report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, wait=wait, **extra)
     counts = ", ".join(f"{v} {k}" for k, v in report.counts.items())
     out.print(f"imported {len(report.files)} file(s): {counts}")
+    for note in report.notes:
+        err.print(f"note: {_escape(note)}")
     for w in report.warnings:
         err.print(f"warning: {_escape(w)}")
     if report.skipped:

@@ -137,7 +137,7 @@ def test_phones_may_overlap_words_but_not_each_other_and_time_past_the_end(tmp_p
     assert _files(corpus) == before
     again = tmp_path / "b.tiers.tsv"
     again.write_text(content, encoding="utf-8")
-    with pytest.raises(StrataError, match="already has a 'spoken' layer"):
+    with pytest.raises(StrataError, match="already has a 'phones' layer"):     # the file's first tier
         corpus.import_files([again], progress=False)
 
 
@@ -147,10 +147,12 @@ def test_poor_alignment_is_refused_unless_accepted(tmp_path):
     rows = "".join(f"{name}\tspoken\t{i:.1f}\t{i + 0.5:.1f}\tzqxj{i}\n" for i in range(30))
     path.write_text("doc\ttier\tstart\tend\tlabel\n" + rows, encoding="utf-8")
     before = _files(corpus)
-    proc = _import(corpus, path)
+    proc = _import(corpus, path)         # no tier looks like the words: none is taken
+    assert proc.returncode == 2 and "no tier's labels are the words of the text" in proc.stderr
+    proc = _import(corpus, path, "--words-tier", "spoken")
     assert proc.returncode == 2 and "aligns only" in proc.stderr and "unaligned" in proc.stderr
     assert _files(corpus) == before
-    proc = _import(corpus, path, "--accept-poor-alignment")
+    proc = _import(corpus, path, "--words-tier", "spoken", "--accept-poor-alignment")
     assert proc.returncode == 0, proc.stderr
     rep = subprocess.run([sys.executable, "-m", "engine.cli", "align-report", str(corpus.path), "--layer", "spoken"],
                          capture_output=True, text=True)

@@ -30,6 +30,7 @@ class ImportReport:
     counts: dict[str, int] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
     skipped: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)     # what the import chose, for the user to know
 
     def add(self, key: str, n: int = 1) -> None:
         self.counts[key] = self.counts.get(key, 0) + n
@@ -40,6 +41,7 @@ class ImportReport:
             self.add(k, v)
         self.warnings += other.warnings
         self.skipped += other.skipped
+        self.notes += other.notes
 
 
 def sha256_of(path: Path) -> str:

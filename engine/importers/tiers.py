@@ -30,13 +30,12 @@ from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.stored import docs_with_rows, next_ord
 from engine.importers.tabular import (Columns, parse_time, read_columns, read_table, seconds_text, times_fast,
                                       time_unit)
+from engine.importers.word_tiers import SpeakerPattern, choose, layer_name, speaker_tiers
 from engine.store import Batch, DocInfo
 
 FORMAT = "tiers"
 REQUIRED = ["doc", "tier", "start", "end", "label"]
 ALLOWED_RESERVED = {"start", "end", "doc"}
-#: Tiers holding the words a forced aligner wrote: aligned to the text.
-WORD_TIERS = ("spoken", "words")
 
 
 @dataclass
@@ -160,6 +159,13 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         report.files.append(str(path))
         batch.add_source(str(path), sha256_of(path))
     rows = _read(paths, unit)
+    return import_rows(batch, rows, options, report)
+
+
+def import_rows(batch: Batch, rows: _Rows, options: ImportOptions, report: ImportReport) -> ImportReport:
+    """Import time-aligned rows read from any tier format: the words tier chosen and aligned to
+    the text, every tier a layer, the stored text layers given times."""
+    rows, word_tiers = _speakers(rows, options)
     n = len(rows.line)
     doc_code, doc_names = _codes(rows.doc)
     tier_code, tier_names = _codes(rows.tier)
@@ -181,7 +187,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
     last_end = np.maximum.reduceat(rows.end[order], doc_bounds[:-1]) if n else np.zeros(0, np.int64)
 
     durations = _known_durations(batch)
-    layer_of = {t: options.layer(t) for t in tier_names}
+    layer_of = {t: options.layer(layer_name(t)) for t in tier_names}
     stored = {layer: docs_with_rows(batch.store, layer) for layer in layer_of.values()}
     infos: list[DocInfo] = []
     for d, name in enumerate(doc_names):
@@ -198,20 +204,22 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             raise _past_the_end(rows, np.sort(idx), name, known, tier_code)
         batch.set_duration(info.doc, max(int(last_end[d]), known or 0))
         here = np.unique(t_sorted[doc_bounds[d]:doc_bounds[d + 1]])
-        for t in sorted(here.tolist(), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
+        for t in sorted(here.tolist()):             # tiers in the order the rows name them first
             if info.doc in stored[layer_of[tier_names[t]]]:
                 first = idx[int(np.searchsorted(t_sorted[doc_bounds[d]:doc_bounds[d + 1]], t))]
                 raise StrataError(f"document {name!r} already has a {layer_of[tier_names[t]]!r} layer; import a "
                                   "second set of tiers with --prefix NAME", **rows.place(int(first)))
         infos.append(info)
         report.add("documents")
+    if word_tiers is None:
+        word_tiers = _choose_words(batch, rows, tier_code, tier_names, infos, options, report)
 
     ords: dict[str, int] = {}
     alignments: dict[str, list] = {}
     unfinished: list[str] = []
-    for t in sorted(range(len(tier_names)), key=lambda t: (tier_names[t] not in WORD_TIERS, tier_names[t])):
+    for t in sorted(range(len(tier_names)), key=lambda t: (tier_names[t] not in word_tiers, tier_names[t])):
         tier, layer = tier_names[t], layer_of[tier_names[t]]
-        words = tier in WORD_TIERS
+        words = tier in word_tiers
         ords[layer] = next_ord(batch.store, layer)
         batch.declare_layer(layer, "sequence" if words else "span",
                             {"format": FORMAT, "time": True, "time_axis": True, TIME_WORDS: words, "tier": tier,
@@ -241,6 +249,38 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
         times_onto_stored_layers(b, touched, skip=set(ords))
     batch.on_commit(finalise)
     return report
+
+
+def _speakers(rows: _Rows, options: ImportOptions) -> tuple[_Rows, set[str] | None]:
+    """With a speaker pattern (``--words-tier '* - words'``): the rows with each speaker's
+    tiers renamed to their kind and ``speaker`` set, and the words tiers' name; else the rows
+    as they are and None (:func:`_choose_words` decides)."""
+    choice = options.extra.get("words_tier")
+    if choice is None or "*" not in choice:
+        return rows, None
+    codes, names = _codes(rows.tier)
+    chosen, _ = choose(choice, names, {}, [], False)
+    mapping = speaker_tiers(names, SpeakerPattern.parse(choice))
+    take = pa.array(codes)
+    tier = pa.array([mapping.get(t, (None, t))[1] for t in names], pa.string()).take(take)
+    who = pa.array([mapping.get(t, (None, None))[0] for t in names], pa.string()).take(take)
+    given = rows.attrs.get("speaker")
+    attrs = {**rows.attrs, "speaker": who if given is None else pc.coalesce(given, who)}
+    return (_Rows(rows.paths, rows.file, rows.line, rows.doc, tier, rows.start, rows.end, rows.label, attrs),
+            {mapping[t][1] for t in chosen})
+
+
+def _choose_words(batch: Batch, rows: _Rows, tier_code: np.ndarray, tier_names: list[str], infos: list[DocInfo],
+                  options: ImportOptions, report: ImportReport) -> set[str]:
+    """The words tier as ``--words-tier`` names it, or the one whose labels are found best in
+    the documents' text (:func:`engine.importers.word_tiers.choose`), said in a note."""
+    labels = {name: rows.label.filter(pa.array(tier_code == k)) for k, name in enumerate(tier_names)}
+    bridge = any(batch.store.layer_props(layer).get(TIME_WORDS) for layer in batch.store.layers())
+    chosen, note = choose(options.extra.get("words_tier"), tier_names, labels, [info.text for info in infos],
+                          bridge)
+    if note:
+        report.notes.append(note)
+    return chosen
 
 
 def _sort_by_time(group: np.ndarray, start: np.ndarray, end: np.ndarray) -> np.ndarray:
