@@ -91,13 +91,17 @@ def import_(
     words_tier: Optional[str] = typer.Option(None, "--words-tier",
                                              help="time tiers: the tier of the words, or '* - words' for one "
                                                   "per speaker (default: the tier whose labels match the text best)"),
+    pauses_from: Optional[str] = typer.Option(None, "--pauses-from",
+                                              help="TextGrid: the words tier's intervals with this label are the "
+                                                   "pauses (default: its empty intervals)"),
     accept_poor_alignment: bool = typer.Option(False, "--accept-poor-alignment",
                                                help="keep a layer that aligns below the threshold"),
     wait: float = typer.Option(0.0, "--wait", help="seconds to wait while another process writes the corpus"),
 ) -> None:
     """Import annotation files into a corpus (all or nothing)."""
     extra = {k: v for k, v in {"doc": doc, "layer": layer, "anchor": anchor, "time_unit": time_unit,
-                               "words_tier": words_tier, "accept_poor_alignment": accept_poor_alignment}.items()
+                               "words_tier": words_tier, "pauses_from": pauses_from,
+                               "accept_poor_alignment": accept_poor_alignment}.items()
              if v not in (None, False, "s")}
     report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, wait=wait, **extra)
     counts = ", ".join(f"{v} {k}" for k, v in report.counts.items())
