@@ -108,3 +108,18 @@ def test_speaker_patterns_split_tier_names():
         "Anna - words": ("Anna", "words"), "Ben - words": ("Ben", "words"), "Anna - phones": ("Anna", "phones")}
     with pytest.raises(StrataError, match="one \\*"):
         SpeakerPattern.parse("words")
+
+
+def test_a_small_tier_of_text_words_does_not_win_over_the_words(gum, tmp_path):
+    """A tier of a few labels that are all words of the text (hesitations written "the", say)
+    has a higher share of text words than the words tier, but far fewer of them."""
+    corpus, doc, tokens = gum
+    text, _ = _table(doc, tokens, "orthography")
+    lines = text.splitlines(keepends=True)
+    for k in (3, 9, 27):                 # an aligner's unknown-word marks: not words of the text
+        lines[k] = lines[k].rsplit("\t", 1)[0] + "\t<unk>\n"
+    text = "".join(lines) + "".join(f"{doc}\thesitations\t{200 + k}.000\t{200 + k}.500\tthe\n" for k in range(5))
+    path = tmp_path / "a.tiers.tsv"
+    path.write_text(text, encoding="utf-8")
+    report = corpus.import_files([path], progress=False)
+    assert "took tier 'orthography' as the words" in report.notes[0]

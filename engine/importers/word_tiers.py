@@ -87,15 +87,16 @@ def speaker_tiers(tier_names: list[str], pattern: SpeakerPattern) -> dict[str, t
     return out
 
 
-def coverage(labels: pa.Array, text_words: pa.Array) -> float:
+def coverage(labels: pa.Array, text_words: pa.Array) -> tuple[float, int]:
     """The share of the non-empty labels that are words of the text (case-blind, punctuation
-    around them ignored): a cheap stand-in for a whole alignment, good enough to tell words
-    from phones or events."""
+    around them ignored), and how many they are: a cheap stand-in for a whole alignment, good
+    enough to tell words from phones (few found) and from pauses or events (few labels)."""
     cleaned = pc.utf8_lower(pc.replace_substring_regex(labels, r"^\W+|\W+$", ""))
     cleaned = cleaned.filter(pc.not_equal(cleaned, ""))
     if not len(cleaned):
-        return 0.0
-    return pc.mean(pc.cast(pc.is_in(cleaned, value_set=text_words), pa.float64())).as_py()
+        return 0.0, 0
+    found = pc.sum(pc.cast(pc.is_in(cleaned, value_set=text_words), pa.int64())).as_py() or 0
+    return found / len(cleaned), found
 
 
 def text_words(texts: list[str]) -> pa.Array:
@@ -126,12 +127,15 @@ def choose(choice: str | None, tier_names: list[str], tier_labels: dict[str, pa.
         return {choice}, None
     words = text_words(texts)
     scores = {t: coverage(tier_labels[t], words) for t in tier_names}
-    best = max(tier_names, key=lambda t: (scores[t], -tier_names.index(t)), default=None)
-    if best is None or scores[best] < MIN_COVERAGE:
+    # among the tiers whose labels are mostly words of the text, the one with the most of them
+    likely = [t for t in tier_names if scores[t][0] >= MIN_COVERAGE]
+    best = max(likely, key=lambda t: (scores[t][1], -tier_names.index(t)), default=None)
+    if best is None:
         if bridge_stored:
             return set(), None
-        shown = ", ".join(f"{t} {100 * scores[t]:.0f} %" for t in tier_names)
+        shown = ", ".join(f"{t} {100 * scores[t][0]:.0f} %" for t in tier_names)
         raise StrataError(f"no tier's labels are the words of the text (labels found in the text: {shown}); "
                           "strata needs a words tier to place the tiers in the text",
                           hint="name it with --words-tier NAME (or '* - words' for one tier per speaker)")
-    return {best}, f"took tier {best!r} as the words: {100 * scores[best]:.1f} % of its labels are words of the text"
+    return {best}, (f"took tier {best!r} as the words: {scores[best][1]} labels, {100 * scores[best][0]:.1f} % of "
+                    "them words of the text")
