@@ -82,6 +82,30 @@ def refuse_nul_in(raw: bytes, path: Path, first_line: int = 1) -> None:
         refuse_nul(raw[raw.rfind(b"\n", 0, at) + 1:at + 1], path, first_line + raw.count(b"\n", 0, at))
 
 
+def line_array(data: bytes, path: Path) -> pa.Array:
+    """Every line of ``data`` (without its LF) as one Arrow string array, read by pyarrow in a
+    block that holds the longest line; invalid UTF-8 is a StrataError naming its line."""
+    import pyarrow.csv as pa_csv
+    try:
+        table = pa_csv.read_csv(
+            pa.BufferReader(data),
+            read_options=pa_csv.ReadOptions(column_names=["line"],
+                                            block_size=max(1 << 20, min(len(data) + 1, (1 << 31) - 1))),
+            parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
+                                              ignore_empty_lines=False, newlines_in_values=False),
+            convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False))
+    except pa.ArrowInvalid as e:
+        if "utf" in str(e).lower():
+            for number, raw in enumerate(data.split(b"\n"), 1):
+                try:
+                    raw.decode("utf-8")
+                except UnicodeDecodeError as bad:
+                    raise StrataError(f"invalid UTF-8 at byte {bad.start} of the line", file=str(path),
+                                      line=number) from None
+        raise StrataError(f"cannot read: {e}", file=str(path)) from None
+    return table.column("line").combine_chunks()
+
+
 def read_lines(path: Path, on_bytes=None, keep_ends: bool = False) -> Iterator[tuple[int, str]]:
     """``(line_number, text)`` pairs without the line end (with it: ``keep_ends``); invalid UTF-8 and NUL characters
     are a StrataError naming the line; a byte-order mark at the start is skipped.

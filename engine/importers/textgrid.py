@@ -31,10 +31,9 @@ from pathlib import Path
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.csv as pa_csv
 
 from engine.errors import StrataError
-from engine.importers.base import ImportOptions, ImportReport, refuse_nul_in, sha256_of, without_bom
+from engine.importers.base import ImportOptions, ImportReport, line_array, refuse_nul_in, sha256_of, without_bom
 from engine.importers.tabular import parse_time, seconds_text, times_fast
 from engine.importers.tiers import _Rows, import_rows
 from engine.importers.word_tiers import SpeakerPattern, choose
@@ -55,24 +54,7 @@ class Tier:
 
 
 def _lines(data: bytes, path: Path) -> pa.Array:
-    try:
-        table = pa_csv.read_csv(
-            pa.BufferReader(data),
-            read_options=pa_csv.ReadOptions(column_names=["line"], block_size=max(1 << 20, min(len(data) + 1,
-                                                                                             (1 << 31) - 1))),
-            parse_options=pa_csv.ParseOptions(delimiter="\x01", quote_char=False, escape_char=False,
-                                              ignore_empty_lines=False, newlines_in_values=False),
-            convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}, strings_can_be_null=False))
-    except pa.ArrowInvalid as e:
-        if "utf" in str(e).lower():
-            for number, raw in enumerate(data.split(b"\n"), 1):
-                try:
-                    raw.decode("utf-8")
-                except UnicodeDecodeError as bad:
-                    raise StrataError(f"invalid UTF-8 at byte {bad.start} of the line", file=str(path),
-                                      line=number) from None
-        raise StrataError(f"cannot read: {e}", file=str(path)) from None
-    return pc.utf8_trim(table.column("line").combine_chunks(), " \t\r")
+    return pc.utf8_trim(line_array(data, path), " \t\r")
 
 
 def values(data: bytes, path: Path) -> tuple[pa.Array, np.ndarray]:

@@ -274,8 +274,13 @@ def _choose_words(batch: Batch, rows: _Rows, tier_code: np.ndarray, tier_names: 
                   options: ImportOptions, report: ImportReport) -> set[str]:
     """The words tier as ``--words-tier`` names it, or the one whose labels are found best in
     the documents' text (:func:`engine.importers.word_tiers.choose`), said in a note."""
-    labels = {name: rows.label.filter(pa.array(tier_code == k)) for k, name in enumerate(tier_names)}
     bridge = any(batch.store.layer_props(layer).get(TIME_WORDS) for layer in batch.store.layers())
+    if options.extra.get("time_only"):          # speaker turns: never words, placed through stored ones
+        if not bridge:
+            raise StrataError(f"{', '.join(tier_names)} take their place in the text from words with times: "
+                              "import those first (a CTM, TextGrid or tier table of the words)")
+        return set()
+    labels = {name: rows.label.filter(pa.array(tier_code == k)) for k, name in enumerate(tier_names)}
     chosen, note = choose(options.extra.get("words_tier"), tier_names, labels, [info.text for info in infos],
                           bridge)
     if note:
