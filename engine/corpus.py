@@ -13,6 +13,7 @@ import os
 from pathlib import Path
 from typing import Iterable
 
+from engine.align.anchor import times_onto_new_layers
 from engine.errors import StrataError
 from engine.exporters import EXPORTERS
 from engine.importers import IMPORTERS, SUFFIXES
@@ -60,7 +61,10 @@ class Corpus:
         self._forget_connection()
         with import_memory_pool(), self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra},
                                                      wait=wait) as batch:
-            return module.import_files(batch, paths, options)
+            report = module.import_files(batch, paths, options)
+            # last of the finalisers: new text layers take times from time words already stored
+            batch.on_commit(times_onto_new_layers)
+            return report
 
     def export(self, format: str = "conllu", out: str | os.PathLike | None = None, prefix: str = "") -> str | None:
         """Write the corpus in ``format`` to ``out`` (a path), or return it as a string."""

@@ -470,3 +470,37 @@ def times_onto_stored_layers(batch: Batch, docs: set[int], skip: set[str]) -> li
             batch.replace_layer(name, out)
             done.append(name)
     return done
+
+
+def times_onto_new_layers(batch: Batch) -> list[str]:
+    """Give the text layers staged in this batch their time spans from the time words already
+    stored, so that a text layer imported after the time tiers gets the times it would have got
+    before them (a finaliser every import runs last; layers that have their times are left).
+
+    Returns the names of the layers rewritten."""
+    staged_words = {n for n, (kind, props) in batch._layer_props.items() if props.get(TIME_WORDS)}
+    words = [p for n in _time_word_layers(batch) if n not in staged_words for p in batch.store.part_paths(n)]
+    if not words:
+        return []
+    done = []
+    with duckdb.connect() as con:
+        for layer, (kind, props) in list(batch._layer_props.items()):
+            if kind == "edges" or props.get(TIME_WORDS) or props.get("time_axis"):
+                continue
+            paths = batch.staged_paths(layer)
+            if not paths:
+                continue
+            names = {c.lower() for (c,) in con.execute(f"SELECT name FROM parquet_schema({sql_str(str(paths[0]))})")
+                     .fetchall()}
+            if not {"start", "end", "t_start"} <= names:
+                continue
+            todo = con.execute(f"SELECT count(*) FROM {parquet(paths)} WHERE t_start IS NULL AND start IS NOT NULL"
+                               ).fetchone()[0]
+            if not todo:
+                continue
+            out = batch.stage / f"{layer}--timed.parquet"
+            rows = rewrite(con, paths, out, [[times_from_chars(words)]])
+            batch.replace_staged(layer, out, rows)
+            props["time"] = True
+            done.append(layer)
+    return done
