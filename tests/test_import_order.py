@@ -49,6 +49,31 @@ def test_text_layers_after_the_times_get_the_same_times(tmp_path, files):
     for layer in ("word", "token", "sentence", "mention", "marks"):
         rows = b.execute(ROWS.format(layer)).fetchall()
         assert rows == a.execute(ROWS.format(layer)).fetchall(), layer
-        assert sum(r[2] is not None for r in rows) > 0.9 * len(rows), layer
+        assert sum(r[2] is not None for r in rows) > 0.7 * len(rows), layer     # all but punctuation
     for layer in ("word", "token", "sentence", "mention"):     # the second annotation, imported last
         assert a.execute(ROWS.format(f"again.{layer}")).fetchall() == b.execute(ROWS.format(layer)).fetchall(), layer
+
+
+def test_a_word_that_did_not_align_has_no_time(tmp_path, files):
+    """A timed word replaced by one that is nowhere in the text: the text token in its place
+    gets no time (before: a zero-width one), a mean duration skips it, and the alignment
+    report counts it.  Every other timed word lasts 0.25 s by construction."""
+    src, ctm, _ = files
+    lines = ctm.read_text(encoding="utf-8").splitlines(keepends=True)
+    doc, channel, start, _, gone = lines[40].split()[:5]
+    lines[40] = f"{doc} {channel} {start} 0.25 zzqxv\n"
+    ctm.write_text("".join(lines), encoding="utf-8")
+    corpus = Corpus.create(tmp_path / "c")
+    corpus.import_files([src], progress=False)
+    corpus.import_files([ctm], progress=False)
+    con = corpus.connect()
+    timed = con.execute("SELECT count(*) FROM token WHERE t_start IS NOT NULL").fetchone()[0]
+    untimed_words = con.execute("""SELECT t.form FROM token t JOIN word w ON w.ord = t.word_first
+                                   WHERE t.t_start IS NULL AND w.upos <> 'PUNCT'""").fetchall()
+    assert [f.lower() for (f,) in untimed_words] == [gone]
+    got = corpus.query("find t = token mean(t.duration) as d, count").table.to_pylist()[0]
+    assert got["d"] == 0.25 and got["count"] > timed
+    from engine.align.report import align_report
+    report = align_report(corpus.store, "words")[0]
+    assert report.untimed["token"] == (got["count"], got["count"] - timed)
+    assert "without a time" in report.text()

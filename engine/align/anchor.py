@@ -72,8 +72,10 @@ def _bridge(words: list[Path]) -> str:
     return f"(SELECT * FROM {parquet(words)} WHERE align IN {_GOOD_SQL} AND t_start IS NOT NULL)"
 
 
-def _transfer_sql(nodes: str, source: str, lo: str, hi: str, a: str, b: str, eps: str) -> str:
-    """Per node id needing ``a``/``b``: values taken from the source rows it overlaps on ``lo``/``hi``."""
+def _transfer_sql(nodes: str, source: str, lo: str, hi: str, a: str, b: str, eps: str, between: bool = True) -> str:
+    """Per node id needing ``a``/``b``: values taken from the source rows it overlaps on ``lo``/``hi``;
+    ``between``: a node overlapping none takes the point where the one before ends (else the one
+    after starts)."""
     return f"""
     WITH n AS (SELECT id, doc, {lo} AS lo, {hi} AS hi0,
                       CASE WHEN {hi} > {lo} THEN {hi} ELSE {lo} + {eps} END AS hi
@@ -83,7 +85,8 @@ def _transfer_sql(nodes: str, source: str, lo: str, hi: str, a: str, b: str, eps
                    ON n.doc = w.doc AND w.lo < n.hi AND w.hi > n.lo GROUP BY n.id),
          before AS (SELECT n.id, w.b AS p FROM n ASOF JOIN w ON n.doc = w.doc AND n.lo >= w.hi),
          after AS (SELECT n.id, w.a AS p FROM n ASOF JOIN w ON n.doc = w.doc AND n.hi0 <= w.lo)
-    SELECT n.id, coalesce(cover.a, before.p, after.p) AS new_a, coalesce(cover.b, before.p, after.p) AS new_b
+    SELECT n.id, {"coalesce(cover.a, before.p, after.p)" if between else "cover.a"} AS new_a,
+           {"coalesce(cover.b, before.p, after.p)" if between else "cover.b"} AS new_b
     FROM n LEFT JOIN cover USING (id) LEFT JOIN before USING (id) LEFT JOIN after USING (id)"""
 
 
@@ -271,8 +274,9 @@ def _node_ranges(c: dict[str, np.ndarray], ref: ranges.Reference, lo: np.ndarray
     return np.where(ok, j, 0), np.where(ok, k, 0)
 
 
-def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, eps: float) -> ArrayFill:
-    """:func:`_transfer_sql` as range lookups: cover, else the word before, else the word after."""
+def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, eps: float,
+                     between: bool = True) -> ArrayFill:
+    """:func:`_transfer_sql` as range lookups: cover, else (``between``) the word before, else the word after."""
     def fill(c: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
         n = len(c["doc"])
         out_a, out_b = np.full(n, np.nan), np.full(n, np.nan)
@@ -291,6 +295,9 @@ def _transfer_arrays(ref: ranges.Reference, lo: str, hi: str, a: str, b: str, ep
         j, k = _node_ranges(c, ref, nlo, nhi, doc, within=False, keys=(lo_key, hi_key))
         cover_a = ranges.range_reduce(ref.values["a"], j, k, np.fmin)
         cover_b = ranges.range_reduce(ref.values["b"], j, k, np.fmax)
+        if not between:
+            out_a[need], out_b[need] = cover_a, cover_b
+            return {a: out_a, b: out_b}
         ib = ranges.last_ending_by(ref, doc, nlo, lo_key)
         before = ranges.pick(ref.values["b"], np.maximum(ib, 0), ib >= 0)
         ia = ranges.first_starting_from(ref, doc, nhi0, hi0_key)
@@ -318,11 +325,14 @@ def chars_from_times(words: list[Path]) -> Fill:
 
 
 def times_from_chars(words: list[Path]) -> Fill:
-    """Fill for text-only nodes: the time span of the aligned words they cover."""
+    """Fill for text-only nodes: the time span of the aligned words they cover.  A node that
+    covers none (punctuation, or a word the timed words did not align to) has no time: a point
+    at its neighbour's edge would count as a duration of 0 in every mean."""
     ref = _bridge_reference(words, "start", '"end"', "t_start", "t_end")
-    return Fill(_transfer_sql("__n", _bridge(words), "start", '"end"', "t_start", "t_end", "1"),
+    return Fill(_transfer_sql("__n", _bridge(words), "start", '"end"', "t_start", "t_end", "1", between=False),
                 {"t_start": "new_a", "t_end": "new_b"},
-                _rename(_transfer_arrays(ref, "start", "end", "a", "b", 1.0), {"a": "t_start", "b": "t_end"},
+                _rename(_transfer_arrays(ref, "start", "end", "a", "b", 1.0, between=False),
+                        {"a": "t_start", "b": "t_end"},
                         {"t_start": "a", "t_end": "b"}) if ref else None)
 
 

@@ -26,6 +26,8 @@ class LayerAlignment:
     layer: str
     counts: dict[str, int] = field(default_factory=dict)
     examples: list[dict] = field(default_factory=list)
+    #: for a layer of timed words: per text layer, (nodes, nodes without a time)
+    untimed: dict[str, tuple[int, int]] = field(default_factory=dict)
 
     @property
     def words(self) -> int:
@@ -46,6 +48,10 @@ class LayerAlignment:
         for ex in self.examples:
             where = f" (line {ex['line']})" if ex.get("line") is not None else ""
             lines.append(f"  {ex['align']:<9} {ex['form']!r} in {ex['doc']!r}{where}: ...{ex['context']}...")
+        if self.untimed:
+            counts = ", ".join(f"{name} {missing} of {rows}" for name, (rows, missing) in self.untimed.items())
+            lines.append(f"  without a time (no aligned timed word covers them: punctuation, or words the timed "
+                         f"words did not align to): {counts}")
         return "\n".join(lines)
 
 
@@ -119,6 +125,16 @@ def align_report(store, layer: str | None = None) -> list[LayerAlignment]:
             for c, f, doc, ln, score, local, text in rows:
                 rep.examples.append({"align": c, "form": f, "doc": doc, "line": ln, "score": score,
                                      "context": _context(text, int(local or 0))})
+            if store.layer_props(name).get("time_words"):
+                docs = f"SELECT DISTINCT doc FROM {rel}"
+                for other, info in store.layers().items():
+                    props = store.layer_props(other)
+                    if info.kind != "sequence" or props.get("time_words") or props.get("time_axis"):
+                        continue
+                    orel = '"' + other.replace('"', '""') + '"'
+                    rows_, missing = con.execute(f"SELECT count(*), count(*) FILTER (WHERE t_start IS NULL) "
+                                                 f"FROM {orel} WHERE doc IN ({docs})").fetchone()
+                    rep.untimed[other] = (int(rows_), int(missing))
             out.append(rep)
     finally:
         con.close()
