@@ -4,7 +4,7 @@ Schema 1 named the CoNLL-U syntactic words ``token`` and the surface tokens ``wo
 reverse of the CoNLL-U standard, and its ordinal columns followed (``tok_first`` counted
 syntactic words).  Schema 2 swaps both, and calls the layer kind of a segmentation
 ``sequence``.  Since node ids, ordinals and anchors are the same under either name, the
-migration renames and rewrites, and computes nothing:
+migration renames and rewrites:
 
 * every CoNLL-U layer pair ``P.token``/``P.word`` swaps names (folders, catalog rows, the
   ``nodes`` of edge sets, ``anchor = tokens:LAYER`` of span layers);
@@ -15,8 +15,13 @@ migration renames and rewrites, and computes nothing:
 
 Schema 2 kept times as binary floating-point seconds; schema 3 keeps whole microseconds.  The
 float of a time read from a decimal text with at most 6 places is the double nearest to it,
-so ``round(t * 10^6)`` gives back that text's microseconds exactly.  A schema-1 corpus gets
-both steps; ``meta.schema_version`` becomes 3.
+so ``round(t * 10^6)`` gives back that text's microseconds exactly.
+
+Schema 3 gave a text node that no aligned timed word covers (punctuation, an empty node, a word
+the aligner missed) a zero-width point at its neighbour's edge; schema 4 leaves its time NULL.
+Every text layer that took its times from the timed words gets them again from the stored
+timed words (``align.anchor.times_from_chars``), the one step that computes.  An older corpus
+gets every later step; ``meta.schema_version`` becomes 4.
 
 The new corpus is built in a hidden folder beside the old one; only when it is complete are
 the folders exchanged (two renames), so a failure or an interrupt leaves the old corpus as it
@@ -34,6 +39,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
+from engine.align.anchor import TIME_WORDS, rewrite, times_from_chars
 from engine.errors import StrataError
 from engine.lock import writer_lock
 from engine.store import CATALOG_FILE, ROW_GROUP_SIZE, SCHEMA_VERSION, Store, part_write_options
@@ -94,7 +100,7 @@ def migrate(root: str | os.PathLike, *, progress=None) -> dict:
     version = Store(root).meta("schema_version")
     if version == SCHEMA_VERSION:
         raise StrataError(f"{root} already has the current schema ({SCHEMA_VERSION}); nothing to do")
-    if version not in ("1", "2"):
+    if version not in ("1", "2", "3"):
         raise StrataError(f"{root} has corpus schema {version!r}, which this strata cannot migrate")
     work = root.with_name(f".{root.name}.migrating-{os.getpid()}")
     old = root.with_name(f".{root.name}.schema{version}-{os.getpid()}")
@@ -138,6 +144,7 @@ def _build(root: Path, work: Path, progress, rename: bool) -> dict:
             moved[path] = new_path
             if progress:
                 progress(i + 1, len(parts))
+        retimed = _retime(work, layers, parts, moved)
         con.execute("BEGIN")
         # paths of two swapped layers trade places: first every moved path to a unique
         # placeholder, then to its new value, so no step meets a path still in use
@@ -164,4 +171,32 @@ def _build(root: Path, work: Path, progress, rename: bool) -> dict:
         con.execute("CHECKPOINT")
     finally:
         con.close()
-    return {"layers renamed": len(renames), "parts rewritten": len(parts)}
+    return {"layers renamed": len(renames), "parts rewritten": len(parts), "layers re-timed": retimed}
+
+
+def _retime(work: Path, layers: dict[str, tuple[str, dict]], parts: list[tuple[str, str]],
+            moved: dict[str, str]) -> int:
+    """Times of the text layers from the timed words again, as an import does now (schema 4):
+    a node no aligned timed word covers has none.  Rows, their order and every other column stay."""
+    words = [work / moved[p] for layer, p in parts if layers.get(layer, ("", {}))[1].get(TIME_WORDS)]
+    if not words:
+        return 0
+    done = set()
+    with duckdb.connect() as con:
+        for layer, path in parts:
+            kind, props = layers.get(layer, ("", {}))
+            if kind == "edges" or not props.get("time") or props.get(TIME_WORDS) or props.get("time_axis"):
+                continue
+            dest = work / moved[path]
+            table = pq.read_table(dest)
+            if "t_start" not in table.column_names:
+                continue
+            for name in ("t_start", "t_end"):
+                i = table.schema.get_field_index(name)
+                table = table.set_column(i, table.schema.field(i), pa.nulls(table.num_rows, table.schema.field(i).type))
+            untimed = dest.with_name(dest.stem + "--untimed.parquet")
+            pq.write_table(table, untimed, row_group_size=ROW_GROUP_SIZE, **part_write_options(table.schema))
+            rewrite(con, [untimed], dest, [[times_from_chars(words)]])
+            untimed.unlink()
+            done.add(layer)
+    return len(done)

@@ -45,7 +45,7 @@ from querylang.catalog import AttrInfo, LayerInfo
 #: 2: the CoNLL-U layers carry the standard's names (``word`` the syntactic words, ``token`` the
 #: surface tokens; in 1 they were the other way round), and so do the ordinal columns.
 #: 3: times are whole microseconds (int64), no longer binary floating-point seconds.
-SCHEMA_VERSION = "3"
+SCHEMA_VERSION = "4"
 CATALOG_FILE = "catalog.duckdb"
 ROW_GROUP_SIZE = 122_880
 
@@ -178,13 +178,15 @@ class Store:
         version = self.meta("schema_version")
         if version == SCHEMA_VERSION:
             return
-        if version in ("1", "2"):
+        if version in ("1", "2", "3"):
             raise StrataError(
                 f"{self.root} was made by an older strata (schema {version}), which "
                 + ("named the CoNLL-U syntactic words 'token' and the surface tokens 'word', the reverse of "
-                   "the standard, and " if version == "1" else "")
-                + "kept times as binary floating-point seconds; strata now "
-                f"uses the standard's names and whole microseconds. Migrate it with: strata migrate {self.root} (all or nothing), "
+                   "the standard, " if version == "1" else "")
+                + ("kept times as binary floating-point seconds, " if version in ("1", "2") else "")
+                + "gave a text node no timed word covers a zero-width time at its neighbour's edge; strata now "
+                "leaves such a node without a time" + (" and uses the standard's names and whole microseconds" if version != "3" else "")
+                + f". Migrate it with: strata migrate {self.root} (all or nothing), "
                 "or import the same files into a new corpus; until then it is left as it is")
         raise StrataError(f"{self.root} has corpus schema {version!r}, which this strata does not know "
                           f"(it reads schema {SCHEMA_VERSION}); use the strata that made it")
