@@ -36,10 +36,10 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from engine.align.normalise import is_event, normalise_form, normalise_text
+from engine.align.settle import FUZZY_MIN, settle_fuzzy, word_cuts
 
-#: Share of a leaf's characters that must match for a ``fuzzy`` alignment.
-#: A rule of thumb (common practice: "at least half the characters agree").
-FUZZY_MIN = 0.5
+__all__ = ["FUZZY_MIN", "Alignment", "align_forms", "align_segments"]
+
 #: edlib maps symbols to bytes: at most this many distinct characters per alignment.
 _EDLIB_ALPHABET = 256
 CLASSES = ("exact", "normalised", "fuzzy", "event", "unaligned")
@@ -151,6 +151,19 @@ def align_segments(text: str, forms: Sequence[str], cuts: np.ndarray, lo: np.nda
         start[nonempty] = np.where(has, origin[np.where(has, tmin, 0)], -1)
         end[nonempty] = np.where(has, origin[np.where(has, tmax, 0)] + 1, -1)
     cls = _classify(text, t_lo, t_hi, idx, u_forms, u_parts, use, event, start, end, score)
+    # fuzzy leaves and leaves cutting a word are placed again on whole words of one sentence
+    # (engine/align/settle.py); a leaf whose cut a fuzzy neighbour took until it moved is
+    # placed in a second round
+    leaf_of_q = np.repeat(np.arange(n), lens)
+    for _ in range(2):
+        cuts = word_cuts(text, cls, start, end, seg_of)
+        todo = np.flatnonzero(cuts | (cls == _FUZZY)) if _ == 0 else np.flatnonzero(cuts)
+        if not len(todo):
+            break
+        cls[todo] = _FUZZY
+        eq = eq_of_q & (t_of_q >= 0) & np.isin(leaf_of_q, todo)
+        settle_fuzzy(text, t_lo, lambda i: u_forms[idx[i]], cls, start, end, score, leaf_of_q[eq],
+                     origin[t_of_q[eq]], seg_of, lo, hi, leaves=todo)
     # events and unaligned leaves: a point at the end of the previous aligned leaf of the segment
     point = (cls == _EVENT) | (cls == _UNALIGNED)
     if point.any():
