@@ -182,13 +182,34 @@ class LayerStats:
     sent_null: int | None                             # None when a part did not count it
 
 
+_INTEGER_TYPES = {"TINYINT", "SMALLINT", "INTEGER", "BIGINT", "HUGEINT", "UTINYINT", "USMALLINT",
+                  "UINTEGER", "UBIGINT"}
+
+
+def _unified_type(types: set[str]) -> str:
+    """The type DuckDB reads a column as when parts differ (``union_by_name``): numbers of
+    both kinds as DOUBLE, anything else with text as VARCHAR.
+
+    >>> _unified_type({"BIGINT"}), _unified_type({"BIGINT", "DOUBLE"}), _unified_type({"BIGINT", "VARCHAR"})
+    ('BIGINT', 'DOUBLE', 'VARCHAR')
+    """
+    if len(types) == 1:
+        return next(iter(types))
+    if types <= _INTEGER_TYPES:
+        return "BIGINT"
+    if types <= _INTEGER_TYPES | {"DOUBLE", "FLOAT"}:
+        return "DOUBLE"
+    return "VARCHAR"
+
+
 def merge(parts: list[PartStats]) -> LayerStats:
     """The statistics of a layer made of ``parts``; an attribute a part lacks is null in all its rows."""
     total = sum(p.rows for p in parts)
-    types: dict[str, str] = {}
+    seen: dict[str, set[str]] = {}
     for p in parts:
         for name, a in p.attrs.items():
-            types.setdefault(name, a.type)
+            seen.setdefault(name, set()).add(a.type)
+    types = {name: _unified_type(ts) for name, ts in seen.items()}
     attrs = {}
     for name, typ in types.items():
         have = [p.attrs[name] for p in parts if name in p.attrs]

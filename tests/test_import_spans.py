@@ -88,3 +88,26 @@ def test_unknown_anchor_layer_is_named(tmp_path):
     path.write_text("doc\tstart\tend\tlabel\n", encoding="utf-8")
     with pytest.raises(StrataError, match="no layer 'wrod'"):
         corpus.import_files([path], anchor="tokens:wrod", progress=False)
+
+
+def test_attribute_columns_keep_number_types_and_a_layer_of_mixed_imports_reads_as_text(tmp_path):
+    """A ``group`` of whole numbers is stored as a number; when a later import into the same
+    layer brings text in that column, the layer reads it as text (DuckDB's union of the parts),
+    and the catalog's type says so, so conditions on it are checked as text."""
+    corpus, src = _first_doc(tmp_path)
+    name = corpus.store.documents()[0].name
+    mentions = _single_token_mentions(src)[:6]
+    first = tmp_path / "a.spans.tsv"
+    first.write_text("doc\tstart\tend\tlabel\tgroup\tweight\n" + "".join(
+        f"{name}\t{k}\t{k}\t{t}\t{i // 2}\t{i / 4}\n" for i, (k, t) in enumerate(mentions[:4])), encoding="utf-8")
+    corpus.import_files([first], anchor="tokens:word", layer="marks", progress=False)
+    assert corpus.store.layers()["marks"].attrs["group"].type == "int"
+    assert corpus.query("find m = marks sum(m.group), sum(m.weight)").rows()[0] == \
+        pytest.approx({"sum(m.group)": 0 + 0 + 1 + 1, "sum(m.weight)": 0 + 0.25 + 0.5 + 0.75, "count": 4})
+    later = tmp_path / "b.spans.tsv"
+    later.write_text("doc\tstart\tend\tlabel\tgroup\n" + "".join(
+        f"{name}\t{k}\t{k}\t{t}\tx{i}\n" for i, (k, t) in enumerate(mentions[4:])), encoding="utf-8")
+    corpus.import_files([later], anchor="tokens:word", layer="marks", progress=False)
+    assert corpus.store.layers()["marks"].attrs["group"].type == "str"
+    assert corpus.query('find m = marks(group = "1") count').rows()[0]["count"] == 2
+    assert corpus.query('find m = marks(group = "x0") count').rows()[0]["count"] == 1

@@ -240,3 +240,32 @@ def test_phones_inside_words_in_time(tmp_path):
     for p_start in sorted({r["p.start"] for r in pairs}):
         owner[p_start] = max(s for s in starts if s <= p_start + 1e-9)
     assert all(abs(r["w.start"] - owner[r["p.start"]]) < 1e-9 for r in pairs) and len(pairs) == sum(n_phones)
+
+
+def test_extra_columns_keep_their_number_types(tmp_path):
+    """Syllable counts (the CMU dictionary's: one vowel, marked by its stress digit, per syllable)
+    and confidences are stored as numbers and can be summed and averaged; a speaker "1" and a
+    code "007" stay text."""
+    corpus, name, _ = _first_doc(tmp_path)
+    _, tokens = _tiers(corpus, name, 40)
+    rows, want_syllables, want_conf = [], 0, []
+    for i, (form, _s, _e, a, b) in enumerate(tokens):
+        syllables = sum(ph[-1].isdigit() for ph in CMU.get(form.lower(), [["AH0"]])[0])
+        conf = round(0.5 + (i % 10) / 20, 2)
+        want_syllables += syllables
+        want_conf.append(conf)
+        rows.append(f"{name}\tspoken\t{a:.4f}\t{b:.4f}\t{form.lower()}\t1\t{syllables}\t{conf}\t007\n")
+    path = tmp_path / "typed.tiers.tsv"
+    path.write_text("doc\ttier\tstart\tend\tlabel\tspeaker\tsyllables\tconfidence\tcode\n" + "".join(rows),
+                    encoding="utf-8")
+    corpus.import_files([path], progress=False, words_tier="spoken")
+    types = dict(corpus.connect().execute(
+        "SELECT column_name, data_type FROM information_schema.columns WHERE table_name = 'spoken'").fetchall())
+    assert (types["syllables"], types["confidence"], types["speaker"], types["code"]) == \
+        ("BIGINT", "DOUBLE", "VARCHAR", "VARCHAR")
+    got = corpus.query("find w = spoken sum(w.syllables), mean(w.confidence)").rows()[0]
+    assert got["sum(w.syllables)"] == want_syllables
+    assert got["mean(w.confidence)"] == pytest.approx(sum(want_conf) / len(want_conf))
+    assert corpus.query('find w = spoken(speaker = "1", code = "007") count').rows()[0]["count"] == len(tokens)
+    assert corpus.query("find w = spoken(syllables >= 2) count").rows()[0]["count"] == \
+        sum(sum(ph[-1].isdigit() for ph in CMU.get(f.lower(), [["AH0"]])[0]) >= 2 for f, *_ in tokens)

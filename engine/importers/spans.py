@@ -22,7 +22,7 @@ import pyarrow as pa
 from engine.align.anchor import SENTENCE_LAYER, finalise_new_layer, parquet
 from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
-from engine.importers.tabular import parse_int, parse_time, read_table, seconds_text, time_unit
+from engine.importers.tabular import parse_int, parse_time, read_table, seconds_text, time_unit, typed_column
 from engine.store import Batch, DocInfo
 
 FORMAT = "spans"
@@ -146,6 +146,7 @@ def import_files(batch: Batch, paths: list[Path], options: ImportOptions) -> Imp
             cols["id"] = list(range(id0, id0 + n))
             table = pa.table({k: (pa.array(v, pa.int64()) if k in ("start", "end", "t_start", "t_end", "tok_first",
                                                                     "tok_last", "word_first", "word_last") else
+                                  typed_column(pa.array(v, pa.string())) if k in attrs and k != "speaker" else
                                   pa.array(v, pa.string()) if k in attrs or k == "label" else v)
                               for k, v in cols.items()})
             batch.write_nodes(layer, "span", table)

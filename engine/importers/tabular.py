@@ -258,3 +258,37 @@ def time_unit(extra: dict) -> str:
     if unit not in ("s", "ms"):
         raise StrataError(f"--time-unit {unit!r}: use s (seconds) or ms (milliseconds)")
     return unit
+
+
+#: Text a number column holds: integers without a leading zero ("007" is a code, kept as text),
+#: and decimals ("0.25", "-1.5e-3"); "nan", "inf" and thousands separators are text.
+_INT_TEXT = r"^[+-]?(0|[1-9][0-9]*)$"
+_FLOAT_TEXT = r"^[+-]?(0|[1-9][0-9]*)?(\.[0-9]+)?([eE][+-]?[0-9]+)?$"
+
+
+def typed_column(values: pa.Array) -> pa.Array:
+    """An attribute column of text as the numbers it holds, so it can be compared, summed and
+    averaged: all of its values integers -> int64, all numbers -> float64, else text as read.
+    Empty cells are null and do not decide.
+
+    >>> typed_column(pa.array(["3", None, "12"])).type, typed_column(pa.array(["3", "0.5"])).type
+    (DataType(int64), DataType(double))
+    >>> typed_column(pa.array(["007", "12"])).type, typed_column(pa.array(["3", "three"])).type
+    (DataType(string), DataType(string))
+    """
+    if not (pa.types.is_string(values.type) or pa.types.is_large_string(values.type)):
+        return values
+    present = pc.drop_null(pc.utf8_trim_whitespace(values))
+    if len(present) == 0:
+        return values
+    trimmed = pc.utf8_trim_whitespace(values)
+    if pc.all(pc.match_substring_regex(present, _INT_TEXT)).as_py():
+        try:
+            return pc.cast(trimmed, pa.int64())
+        except pa.ArrowInvalid:           # past int64: decimals would round it, keep the text
+            return values
+    is_float = pc.and_(pc.match_substring_regex(present, _FLOAT_TEXT),
+                       pc.match_substring_regex(present, r"[0-9]"))
+    if pc.all(is_float).as_py():
+        return pc.cast(trimmed, pa.float64())
+    return values

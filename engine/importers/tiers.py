@@ -1,7 +1,8 @@
 """Time-aligned tiers in (format ``tiers``): one layer per tier, with times in seconds.
 
 A table with a header row (TSV, or CSV by the ``.csv`` ending): required columns
-``doc, tier, start, end, label``, optional ``speaker`` and any attribute columns.
+``doc, tier, start, end, label``, optional ``speaker`` and any attribute columns (numbers
+kept as numbers: :func:`engine.importers.tabular.typed_column`).
 Every tier becomes a layer named after it (``--prefix P``: ``P.tier``). The ``words``
 tier is aligned by characters to the document's primary text (:mod:`engine.align`)
 and becomes the bridge between text and time; the other tiers (phones, pauses,
@@ -29,7 +30,7 @@ from engine.errors import StrataError
 from engine.importers.base import ImportOptions, ImportReport, sha256_of
 from engine.importers.stored import docs_with_rows, next_ord
 from engine.importers.tabular import (Columns, parse_time, read_columns, read_table, seconds_text, times_fast,
-                                      time_unit)
+                                      time_unit, typed_column)
 from engine.importers.word_tiers import SpeakerPattern, choose, layer_name, speaker_tiers
 from engine.store import Batch, DocInfo
 
@@ -114,6 +115,8 @@ def _read(paths: list[Path], unit: str) -> _Rows:
     n_of = [len(x) for x in lines]
     attrs = {c: pa.concat_arrays([p.get(c, pa.nulls(n, pa.string())) for p, n in zip(attr_parts, n_of)])
              for c in attr_cols}
+    # numbers stay numbers (syllable counts, confidences); a speaker is a name, "1" or not
+    attrs = {c: a if c == "speaker" else typed_column(a) for c, a in attrs.items()}
     return _Rows(paths, np.concatenate(files), np.concatenate(lines), pa.concat_arrays(docs),
                  pa.concat_arrays(tiers), np.concatenate(starts), np.concatenate(ends),
                  pa.concat_arrays(labels), attrs)
