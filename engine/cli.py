@@ -94,13 +94,16 @@ def import_(
     pauses_from: Optional[str] = typer.Option(None, "--pauses-from",
                                               help="TextGrid: the words tier's intervals with this label are the "
                                                    "pauses (default: its empty intervals)"),
+    recording: Optional[str] = typer.Option(None, "--recording",
+                                            help="the audio or video file of the one document these files are "
+                                                 "about (several documents: a documents.tsv manifest)"),
     accept_poor_alignment: bool = typer.Option(False, "--accept-poor-alignment",
                                                help="keep a layer that aligns below the threshold"),
     wait: float = typer.Option(0.0, "--wait", help="seconds to wait while another process writes the corpus"),
 ) -> None:
     """Import annotation files into a corpus (all or nothing)."""
     extra = {k: v for k, v in {"doc": doc, "layer": layer, "anchor": anchor, "time_unit": time_unit,
-                               "words_tier": words_tier, "pauses_from": pauses_from,
+                               "words_tier": words_tier, "pauses_from": pauses_from, "recording": recording,
                                "accept_poor_alignment": accept_poor_alignment}.items()
              if v not in (None, False, "s")}
     report = _open(corpus).import_files(files, format=format, prefix=prefix, lenient=lenient, wait=wait, **extra)

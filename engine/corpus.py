@@ -16,7 +16,7 @@ from typing import Iterable
 from engine.align.anchor import times_onto_new_layers
 from engine.errors import StrataError
 from engine.exporters import EXPORTERS
-from engine.importers import IMPORTERS, SUFFIXES
+from engine.importers import IMPORTERS, NAMES, SUFFIXES
 from engine.importers.base import ImportOptions, ImportReport, import_memory_pool
 from engine.store import Store
 
@@ -62,6 +62,8 @@ class Corpus:
         with import_memory_pool(), self.store.batch(fmt, {"prefix": prefix, "lenient": lenient, **extra},
                                                      wait=wait) as batch:
             report = module.import_files(batch, paths, options)
+            if extra.get("recording"):
+                _name_the_recording(batch, str(extra["recording"]))
             # last of the finalisers: new text layers take times from time words already stored
             batch.on_commit(times_onto_new_layers)
             return report
@@ -135,11 +137,25 @@ class Corpus:
         return compiled.explain_text(self._query_connection())
 
 
+def _name_the_recording(batch, value: str) -> None:
+    """``--recording``: the recording of the one document the imported files are about."""
+    from engine.importers.documents import recording_path
+    docs = sorted(batch.touched_documents())
+    if len(docs) != 1:
+        names = {d.doc: d.name for d in batch.store.documents()} | {d.doc: d.name for d in batch._docs}
+        about = ", ".join(repr(names.get(d, d)) for d in docs[:5]) + (" ..." if len(docs) > 5 else "")
+        raise StrataError(f"--recording names the recording of one document, and these files are about "
+                          f"{len(docs)}" + (f" ({about})" if docs else "") + ": give each document its "
+                          "recording in a documents.tsv manifest (columns doc, recording)")
+    batch.set_doc_attr(docs[0], "recording", recording_path(value, Path.cwd()))
+
+
 def _guess_format(paths: list[Path]) -> str:
     fmts = set()
     for p in paths:
         name = p.name.lower()
-        fmt = next((f for suf, f in sorted(SUFFIXES.items(), key=lambda kv: -len(kv[0])) if name.endswith(suf)), None)
+        fmt = NAMES.get(name) or next((f for suf, f in sorted(SUFFIXES.items(), key=lambda kv: -len(kv[0]))
+                                       if name.endswith(suf)), None)
         if fmt is None:
             raise StrataError("cannot tell the format from the file name; give --format", file=str(p))
         fmts.add(fmt)

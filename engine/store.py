@@ -35,6 +35,7 @@ from typing import Iterator
 
 import duckdb
 import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 from engine import stats as part_statistics
@@ -509,6 +510,21 @@ class Batch:
         for k, v in attrs.items():
             self._doc_attrs.append((info.doc, k, v))
 
+    def set_doc_attr(self, doc: int, key: str, value: str) -> None:
+        """Set a document attribute; it replaces the stored value of ``key`` at commit."""
+        self._doc_attrs.append((doc, key, value))
+
+    def touched_documents(self) -> set[int]:
+        """The documents of the nodes staged so far (every layer's ``doc`` column)."""
+        docs: set[int] = set()
+        for layer in list(self._layer_props):
+            for path in self.staged_paths(layer):
+                names = pq.ParquetFile(path).schema_arrow.names
+                if "doc" in names:
+                    col = pq.read_table(path, columns=["doc"]).column("doc")
+                    docs.update(v for v in pc.unique(col).to_pylist() if v is not None)
+        return docs
+
     def set_duration(self, doc: int, us: int) -> None:
         """Record the length of a document's recording in whole µs (from its time-aligned tiers)."""
         self._durations[doc] = int(us)
@@ -700,9 +716,11 @@ class Batch:
                 for doc, us in self._durations.items():   # the catalog column is in seconds, for reading
                     con.execute("UPDATE documents SET duration = ? WHERE doc = ?", [us / 1_000_000, doc])
                 if self._doc_attrs:
-                    attrs = pa.table({"doc": pa.array([a[0] for a in self._doc_attrs], pa.int32()),
-                                      "key": [a[1] for a in self._doc_attrs], "value": [a[2] for a in self._doc_attrs]})
+                    last = {(d, k): v for d, k, v in self._doc_attrs}       # set twice: the later value
+                    attrs = pa.table({"doc": pa.array([d for d, _ in last], pa.int32()),
+                                      "key": [k for _, k in last], "value": list(last.values())})
                     con.register("new_doc_attrs", attrs)
+                    con.execute("DELETE FROM doc_attrs WHERE (doc, key) IN (SELECT (doc, key) FROM new_doc_attrs)")
                     con.execute("INSERT INTO doc_attrs SELECT * FROM new_doc_attrs")
                     con.unregister("new_doc_attrs")
                 # one statement per table (each costs a few ms here, whatever its rows)

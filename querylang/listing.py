@@ -14,13 +14,17 @@ Definitions the SQL implements:
   words, nearest first.  A list sorts before the lists it begins (no context comes first).
 * After the keys of ``order by``, hits come in the order of the text: by first character,
   last character, then the node numbers.
+* The hit's place on the recording: ``recording`` is the document attribute of that name
+  (when the corpus has one: a manifest or ``--recording`` gave it), ``start`` and ``end`` the
+  earliest start and latest end of the hit's variables that have times (empty when none has),
+  so a player can be sent there.
 """
 from __future__ import annotations
 
 from querylang import ast
 from querylang.catalog import LayerInfo
 from querylang.outputs import CONTEXT_SIDES
-from querylang.sqltext import SENTENCE_VIEW, ident, one_line, to_seconds, with_
+from querylang.sqltext import DOC_VIEW, SENTENCE_VIEW, ident, one_line, to_seconds, with_
 
 
 WHITE_SPACE = r"\s+"
@@ -83,6 +87,15 @@ def listing_statement(sb, checked, ctes: list[str], last: str, items: list[ast.S
     # the hit's place: the document and sentence of its first variable
     cols += [f"t0.{ident('name')}", f"st0.{ident('sent_id')}" if sentence_ids else "CAST(NULL AS VARCHAR)"]
     names += ["doc", "sentence"]
+    if "recording" in checked.catalog.doc_attrs():
+        joins.append(f"LEFT JOIN {ident(DOC_VIEW)} AS dr ON dr.{ident('doc')} = l._doc0")
+        cols.append(f"dr.{ident('recording')}")
+        names.append("recording")
+    timed = [i for i, v in enumerate(variables) if "t_start" in place_columns(checked.layers[v])]
+    if timed:           # least/greatest skip NULLs: the span of the variables that have times
+        cols += [to_seconds(f"least({', '.join(f'l._t_start{i}' for i in timed)})"),
+                 to_seconds(f"greatest({', '.join(f'l._t_end{i}' for i in timed)})")]
+        names += ["start", "end"]
     for i, v in enumerate(variables):
         t, layer = f"t{i}", checked.layers[v]
         base = f"{t}.{ident('base')}"

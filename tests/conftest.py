@@ -30,13 +30,14 @@ def gum_corpora(tmp_path_factory):
     return out
 
 
-def first_gum_document(tmp: Path):
-    """A corpus holding the first document of the dev split; returns (corpus, the CoNLL-U file)."""
+def first_gum_document(tmp: Path, docs: int = 1):
+    """A corpus holding the first document (``docs``: documents) of the dev split; returns
+    (corpus, the CoNLL-U file)."""
     from engine import Corpus
     lines, seen = [], 0
     with open(gum_file("dev"), encoding="utf-8") as f:
         for line in f:
-            if line.startswith("# newdoc") and seen:
+            if line.startswith("# newdoc") and seen == docs:
                 break
             seen += line.startswith("# newdoc")
             lines.append(line)
