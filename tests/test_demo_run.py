@@ -25,6 +25,7 @@ import pytest
 from rich.console import Console
 
 from corpora_demo.run import DATA, SHOWCASE, build
+from tests.conftest import demo_tier_rows
 
 REPO = Path(__file__).resolve().parents[1]
 TIME_DIGITS = 3          # the tiers give times in whole milliseconds, written as seconds
@@ -94,7 +95,8 @@ class Demo:
 
     def timed_words(self, doc: str) -> list[dict[str, str]]:
         """The aligner's words of one call without events like {laugh}, in time order."""
-        return [r for r in self.tier(doc, "spoken") if not r["label"].startswith("{")]
+        return sorted((r for r in self.tier(doc, "spoken") if not r["label"].startswith("{")),
+                      key=lambda r: float(r["start"]))
 
 
 def read_sentences(path: Path) -> tuple[list[Sentence], dict[str, str], dict[str, list[str]]]:
@@ -195,7 +197,7 @@ def read_table(path: Path) -> list[dict[str, str]]:
 @pytest.fixture(scope="module")
 def demo() -> Demo:
     sentences, texts, surface = read_sentences(DATA / "calls.conllu")
-    d = Demo(sentences, read_trees(DATA / "calls.trees"), read_table(DATA / "calls.tiers.tsv"),
+    d = Demo(sentences, read_trees(DATA / "calls.trees"), demo_tier_rows(DATA),
              read_table(DATA / "calls.spans.tsv"), texts, surface)
     # the rebuilt text is the one the span offsets index (its own `text` column says so)
     for row in d.spans:
