@@ -30,9 +30,11 @@ def rows(con, sql):
 def test_hit_table_columns_and_text(ferry):
     con, cat = ferry
     hits = run_query(con, cat, 'find w = token(form = "ferry") show w.sentence.speaker')
-    assert hits.columns == ["doc", "sentence", "w.doc", "w.sentence", "w.text", "w.char_start", "w.char_end",
-                            "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "hit", "right"]
+    assert hits.columns == ["doc", "sentence", "start", "end", "w.doc", "w.sentence", "w.text", "w.char_start",
+                            "w.char_end", "w.start", "w.end", "w.node", "w.sentence.speaker", "left", "hit", "right"]
     assert all(r["w.doc"] == r["doc"] and r["w.sentence"] == r["sentence"] for r in hits.rows())
+    # one variable: the hit's times are its own
+    assert all((r["start"], r["end"]) == (r["w.start"], r["w.end"]) for r in hits.rows())
     docs = {d["name"]: d["text"] for d in rows(con, "SELECT name, text FROM documents")}
     for r in hits.rows():
         assert docs[r["doc"]][r["w.char_start"]:r["w.char_end"]] == r["w.text"] == "ferry"
